@@ -1,0 +1,376 @@
+"""Read one dataset's file into a :class:`Table`: group labels as text, measures as floats.
+
+Rows with a missing group are dropped and counted; a missing or unparsable value in one
+measure never drops the row for the others. Everything that happened is in the
+:class:`IngestReport`.
+"""
+
+from __future__ import annotations
+
+import csv
+import hashlib
+import io
+import re
+from dataclasses import dataclass, field
+from pathlib import Path
+
+import numpy as np
+
+from .errors import SitebuildError
+from .manifest import DatasetSpec
+
+MISSING_TOKENS = ("", "NA", "NaN", "nan", "null", "NULL", "Null", "n/a", "N/A", "na", "-", "None")
+DELIMITERS = (",", ";", "\t", "|")
+TEXT_SUFFIXES = (".csv", ".tsv", ".txt")
+PARQUET_SUFFIXES = (".parquet", ".pq")
+JSONL_SUFFIXES = (".jsonl", ".ndjson")
+
+
+@dataclass(frozen=True)
+class ColumnProblem:
+    """Values in one column that could not be read as finite numbers."""
+
+    count: int
+    examples: tuple[str, ...]
+
+
+@dataclass(frozen=True)
+class IngestReport:
+    """What reading one file did: rows read, used and dropped (and why), values not parsed."""
+
+    file: str
+    sha256: str
+    rows_read: int
+    rows_used: int
+    rows_dropped: int
+    drop_reasons: dict[str, int]
+    missing: dict[str, int]
+    unparsed: dict[str, ColumnProblem]
+    encoding: str
+    delimiter: str | None
+    warnings: tuple[str, ...] = ()
+
+    def to_json(self) -> dict:
+        """Return the ``source`` block of results.json."""
+        return {
+            "file": self.file,
+            "sha256": self.sha256,
+            "rows_read": self.rows_read,
+            "rows_used": self.rows_used,
+            "rows_dropped": self.rows_dropped,
+            "drop_reasons": dict(self.drop_reasons),
+            "missing": dict(self.missing),
+            "unparsed": {
+                k: {"count": v.count, "examples": list(v.examples)}
+                for k, v in self.unparsed.items()
+            },
+            "encoding": self.encoding,
+            "delimiter": self.delimiter,
+            "warnings": list(self.warnings),
+        }
+
+
+@dataclass(frozen=True, eq=False)
+class Table:
+    """A dataset ready for statistics.
+
+    ``codes[i]`` is the index into ``groups`` of row ``i``; ``columns[name]`` is a float64
+    array per measure (and ``x``), NaN where missing or unparsable.
+    """
+
+    spec: DatasetSpec
+    groups: tuple[str, ...]
+    codes: np.ndarray
+    columns: dict[str, np.ndarray]
+    report: IngestReport
+    _cache: dict = field(default_factory=dict, repr=False)
+
+    @property
+    def n_rows(self) -> int:
+        return int(self.codes.shape[0])
+
+    def values(self, name: str) -> np.ndarray:
+        """Return the float column ``name`` (NaN = missing), one entry per used row."""
+        return self.columns[name]
+
+    def by_group(self, name: str) -> list[np.ndarray]:
+        """Return the non-missing values of ``name`` per group, in display order."""
+        key = ("by_group", name)
+        if key not in self._cache:
+            values = self.columns[name]
+            keep = ~np.isnan(values)
+            codes = self.codes[keep]
+            kept = values[keep]
+            order = np.argsort(codes, kind="stable")
+            bounds = np.searchsorted(codes[order], np.arange(len(self.groups) + 1))
+            sorted_values = kept[order]
+            self._cache[key] = [
+                sorted_values[bounds[i] : bounds[i + 1]] for i in range(len(self.groups))
+            ]
+        return self._cache[key]
+
+
+def natural_key(label: str):
+    """Sort key that puts 'Line 2' before 'Line 10' and numbers before words."""
+    parts = re.split(r"(\d+)", label)
+    return [(0, int(p), p) if p.isdigit() else (1, 0, p.casefold()) for p in parts]
+
+
+def file_sha256(path: Path) -> str:
+    """Return the hex SHA-256 of the file's bytes."""
+    digest = hashlib.sha256()
+    with open(path, "rb") as handle:
+        for chunk in iter(lambda: handle.read(1 << 20), b""):
+            digest.update(chunk)
+    return digest.hexdigest()
+
+
+def _decode_head(path: Path, raw: bytes) -> tuple[str, str, list[str]]:
+    """Return (encoding for pandas, decoded head, warnings)."""
+    if b"\x00" in raw[:8192]:
+        raise SitebuildError(
+            f"{path.name}: this looks like a binary file, not delimited text; export the data "
+            "as CSV, Parquet or JSON Lines."
+        )
+    if raw.startswith(b"\xef\xbb\xbf"):
+        return "utf-8-sig", raw[3:].decode("utf-8", errors="replace"), []
+    try:
+        raw.decode("utf-8")
+        return "utf-8", raw.decode("utf-8"), []
+    except UnicodeDecodeError as exc:
+        # A multi-byte character cut by the head's end is still UTF-8.
+        if exc.start >= len(raw) - 4:
+            return "utf-8", raw[: exc.start].decode("utf-8"), []
+    return (
+        "latin-1",
+        raw.decode("latin-1"),
+        [f"{path.name} is not UTF-8; it was read as Latin-1 — check that accented labels look right."],
+    )
+
+
+def sniff_delimiter(head: str, suffix: str) -> str:
+    """Return the delimiter (comma, semicolon, tab, pipe) that splits the head most consistently."""
+    lines = [line for line in head.splitlines()[:50] if line.strip()]
+    if not lines:
+        return "\t" if suffix == ".tsv" else ","
+    if len(lines) > 1 and not head.endswith("\n"):
+        lines = lines[:-1]  # the last line may be cut short by the head's end
+    best, best_score = None, (0, 0)
+    for delimiter in DELIMITERS:
+        rows = list(csv.reader(io.StringIO("\n".join(lines)), delimiter=delimiter))
+        counts = [len(r) for r in rows]
+        if not counts or counts[0] < 2:
+            continue
+        consistent = sum(c == counts[0] for c in counts)
+        score = (consistent, counts[0])
+        if score > best_score:
+            best, best_score = delimiter, score
+    if best is None:
+        return "\t" if suffix == ".tsv" else ","
+    return best
+
+
+def _needed(spec: DatasetSpec) -> list[str]:
+    names = [spec.group, *spec.measures]
+    if spec.x and spec.x not in names:
+        names.append(spec.x)
+    return names
+
+
+def _check_columns(spec: DatasetSpec, header: list[str]) -> None:
+    seen: dict[str, int] = {}
+    for name in header:
+        seen[name] = seen.get(name, 0) + 1
+    available = ", ".join(f"'{h}'" for h in header[:40]) + (" ..." if len(header) > 40 else "")
+    for role, name in [("group", spec.group), *(("measures", m) for m in spec.measures), ("x", spec.x)]:
+        if name is None:
+            continue
+        if name not in seen:
+            raise SitebuildError(
+                f"{spec.file}: column '{name}' (key '{role}' of dataset '{spec.name}') is not in "
+                f"the file; the columns are {available}."
+            )
+        if seen[name] > 1:
+            raise SitebuildError(
+                f"{spec.file}: column '{name}' appears {seen[name]} times in the header; rename "
+                "the duplicates so each column name is unique."
+            )
+
+
+def _to_numbers(raw, name: str, decimal_comma: bool) -> tuple[np.ndarray, ColumnProblem | None]:
+    """Convert a pandas Series to float64; count values that are not finite numbers."""
+    import pandas as pd
+
+    if raw.dtype.kind in "fiu":
+        values = raw.to_numpy(dtype=np.float64, na_value=np.nan)
+        bad = np.isinf(values)
+        text = None
+    else:
+        text = raw.astype("string")
+        cleaned = text.str.strip()
+        if decimal_comma:
+            cleaned = cleaned.str.replace(",", ".", regex=False)
+        values = pd.to_numeric(cleaned, errors="coerce").to_numpy(dtype=np.float64, na_value=np.nan)
+        present = text.notna().to_numpy() & ~cleaned.isin(MISSING_TOKENS).fillna(False).to_numpy()
+        bad = (np.isnan(values) & present) | np.isinf(values)
+    count = int(bad.sum())
+    if not count:
+        return values, None
+    index = np.flatnonzero(bad)[:3]
+    if text is not None:
+        examples = tuple(str(text.iloc[i])[:40] for i in index)
+    else:
+        examples = tuple(str(values[i]) for i in index)
+    values = values.copy()
+    values[bad] = np.nan
+    return values, ColumnProblem(count=count, examples=examples)
+
+
+def _group_labels(raw) -> np.ndarray:
+    """Return group labels as an object array of str (None where missing), kept as written."""
+    import pandas as pd
+
+    if raw.dtype.kind == "f":
+        # A numeric group code stored as float: 1.0 -> "1", keep others as written.
+        out = np.array(
+            [None if pd.isna(v) else (str(int(v)) if float(v).is_integer() else repr(v)) for v in raw],
+            dtype=object,
+        )
+        return out
+    text = raw.astype("string")
+    missing = text.isna() | text.str.strip().isin(MISSING_TOKENS)
+    out = text.to_numpy(dtype=object, na_value=None)
+    out[missing.to_numpy()] = None
+    return out
+
+
+def read_frame(spec: DatasetSpec):
+    """Return (pandas DataFrame of the needed columns as read, encoding, delimiter, warnings)."""
+    import pandas as pd
+
+    path = spec.path
+    suffix = path.suffix.lower()
+    needed = _needed(spec)
+    if path.stat().st_size == 0:
+        raise SitebuildError(f"{spec.file}: the file is empty; export the data again with a header row.")
+    if suffix in PARQUET_SUFFIXES:
+        import pyarrow.parquet as pq
+
+        try:
+            schema = pq.read_schema(path)
+        except Exception as exc:  # pyarrow raises several types for a bad file
+            raise SitebuildError(
+                f"{spec.file}: not a readable Parquet file ({exc}); export it again."
+            ) from None
+        _check_columns(spec, list(schema.names))
+        frame = pq.read_table(path, columns=needed).to_pandas()
+        return frame, "parquet", None, []
+    if suffix in JSONL_SUFFIXES:
+        try:
+            frame = pd.read_json(path, lines=True, dtype=False)
+        except ValueError as exc:
+            raise SitebuildError(
+                f"{spec.file}: not valid JSON Lines ({exc}); each line must be one JSON object."
+            ) from None
+        _check_columns(spec, [str(c) for c in frame.columns])
+        return frame[needed], "utf-8", None, []
+    if suffix not in TEXT_SUFFIXES:
+        raise SitebuildError(
+            f"{spec.file}: files ending '{suffix}' are not supported; use .csv, .tsv, .txt, "
+            ".parquet or .jsonl."
+        )
+    with open(path, "rb") as handle:
+        head_bytes = handle.read(65536)
+    encoding, head, warnings = _decode_head(path, head_bytes)
+    delimiter = sniff_delimiter(head, suffix)
+    first = head.splitlines()[0] if head.splitlines() else ""
+    header = next(csv.reader([first], delimiter=delimiter), [])
+    if not any(h.strip() for h in header):
+        raise SitebuildError(f"{spec.file}: the first line is empty; the first line must name the columns.")
+    _check_columns(spec, header)
+    decimal_comma = delimiter == ";"
+    numeric = [c for c in needed if c != spec.group]
+    positions = [header.index(c) for c in needed]
+
+    def read(enc: str):
+        return pd.read_csv(
+            path,
+            sep=delimiter,
+            encoding=enc,
+            usecols=positions,
+            dtype={spec.group: str},
+            na_values=list(MISSING_TOKENS),
+            keep_default_na=False,
+            decimal="," if decimal_comma else ".",
+            skipinitialspace=False,
+            engine="c",
+            low_memory=False,
+        )
+
+    try:
+        try:
+            frame = read(encoding)
+        except UnicodeDecodeError:
+            encoding = "latin-1"
+            warnings = [
+                f"{spec.file} is not UTF-8; it was read as Latin-1 — check that accented labels look right."
+            ]
+            frame = read(encoding)
+    except pd.errors.ParserError as exc:
+        match = re.search(r"line (\d+)", str(exc))
+        where = f" at line {match.group(1)}" if match else ""
+        raise SitebuildError(
+            f"{spec.file}: a row has more fields than the header{where}; fix that row or quote "
+            "fields that contain the delimiter."
+        ) from None
+    except pd.errors.EmptyDataError:
+        raise SitebuildError(f"{spec.file}: the file has no columns; export it again with a header row.") from None
+    frame.columns = [header[p] for p in sorted(positions)]
+    del numeric
+    return frame[needed], encoding, delimiter, warnings
+
+
+def read_table(spec: DatasetSpec) -> Table:
+    """Return the dataset as a :class:`Table`, with an :class:`IngestReport` of what happened."""
+    frame, encoding, delimiter, warnings = read_frame(spec)
+    rows_read = int(len(frame))
+    labels = _group_labels(frame[spec.group])
+    has_group = np.array([v is not None for v in labels], dtype=bool) if rows_read else np.zeros(0, bool)
+    import pandas as pd
+
+    decimal_comma = delimiter == ";"
+    columns: dict[str, np.ndarray] = {}
+    unparsed: dict[str, ColumnProblem] = {}
+    missing: dict[str, int] = {}
+    for name in dict.fromkeys([*spec.measures, *([spec.x] if spec.x else [])]):
+        values, problem = _to_numbers(frame[name], name, decimal_comma)
+        if problem:
+            unparsed[name] = problem
+        columns[name] = values[has_group]
+    kept_labels = labels[has_group]
+    codes_raw, uniques = pd.factorize(pd.Series(kept_labels, dtype=object), sort=False)
+    order = sorted(range(len(uniques)), key=lambda i: natural_key(str(uniques[i])))
+    remap = np.empty(len(uniques), dtype=np.int32)
+    remap[order] = np.arange(len(uniques), dtype=np.int32)
+    codes = remap[codes_raw] if len(uniques) else np.zeros(0, dtype=np.int32)
+    groups = tuple(str(uniques[i]) for i in order)
+    for name, values in columns.items():
+        missing[name] = int(np.isnan(values).sum())
+    dropped = rows_read - int(has_group.sum())
+    reasons = {"missing group label": dropped} if dropped else {}
+    if rows_read == 0:
+        warnings = [*warnings, f"{spec.file} has a header but no data rows."]
+    report = IngestReport(
+        file=spec.file,
+        sha256=file_sha256(spec.path),
+        rows_read=rows_read,
+        rows_used=rows_read - dropped,
+        rows_dropped=dropped,
+        drop_reasons=reasons,
+        missing=missing,
+        unparsed=unparsed,
+        encoding=encoding,
+        delimiter=delimiter,
+        warnings=tuple(warnings),
+    )
+    return Table(spec=spec, groups=groups, codes=codes.astype(np.int32), columns=columns, report=report)

@@ -1,0 +1,408 @@
+"""Read and validate ``manifest.toml`` into frozen dataclasses.
+
+Every problem becomes one :class:`SitebuildError` sentence naming the file, the key (and the
+line where it can be found) and the fix.
+"""
+
+from __future__ import annotations
+
+import difflib
+import math
+import re
+import tomllib
+from dataclasses import dataclass, field
+from pathlib import Path
+
+from .errors import SitebuildError
+
+MANIFEST_NAME = "manifest.toml"
+ADJUST_METHODS = ("holm", "bh", "bonferroni", "none")
+ENGINES = ("memory", "stream", "dask")
+DEFAULT_OUTPUT = "site_output"
+
+SITE_KEYS = {
+    "title": "text",
+    "confidence": "number",
+    "alpha": "number",
+    "seed": "integer",
+    "adjust": "text",
+    "output": "text",
+    "history": "integer",
+}
+DATASET_KEYS = {
+    "name": "text",
+    "file": "text",
+    "group": "text",
+    "measures": "list of text",
+    "x": "text",
+    "notes": "text",
+    "reference": "text",
+    "equivalence_margin": "table of numbers",
+    "smooth_span": "number or \"auto\"",
+    "smooth_degree": "integer",
+    "smooth_robust": "integer",
+    "permutations": "integer",
+    "engine": "text",
+}
+
+
+@dataclass(frozen=True)
+class SiteSettings:
+    """The ``[site]`` table: settings shared by every dataset."""
+
+    title: str = "Group comparison"
+    confidence: float = 0.95
+    alpha: float = 0.05
+    seed: int = 20261201
+    adjust: str = "holm"
+    output: str = DEFAULT_OUTPUT
+    history: int = 10
+
+
+@dataclass(frozen=True)
+class DatasetSpec:
+    """One ``[[datasets]]`` entry, with its file path resolved inside the project."""
+
+    name: str
+    file: str
+    path: Path
+    group: str
+    measures: tuple[str, ...]
+    x: str | None = None
+    notes: str | None = None
+    notes_path: Path | None = None
+    reference: str | None = None
+    equivalence_margin: dict[str, float] = field(default_factory=dict)
+    smooth_span: float | str = 0.75
+    smooth_degree: int = 1
+    smooth_robust: int = 0
+    permutations: int = 0
+    engine: str = "memory"
+
+    @property
+    def slug(self) -> str:
+        """A file-name-safe identifier for the dataset's page."""
+        return slugify(self.name)
+
+    def section(self) -> dict:
+        """The manifest entry as plain data (cache keys and results.json use it)."""
+        return {
+            "name": self.name,
+            "file": self.file,
+            "group": self.group,
+            "measures": list(self.measures),
+            "x": self.x,
+            "notes": self.notes,
+            "reference": self.reference,
+            "equivalence_margin": dict(sorted(self.equivalence_margin.items())),
+            "smooth_span": self.smooth_span,
+            "smooth_degree": self.smooth_degree,
+            "smooth_robust": self.smooth_robust,
+            "permutations": self.permutations,
+            "engine": self.engine,
+        }
+
+
+@dataclass(frozen=True)
+class Manifest:
+    """A validated manifest: where the project lives, its settings and datasets."""
+
+    root: Path
+    path: Path
+    site: SiteSettings
+    datasets: tuple[DatasetSpec, ...]
+
+
+def slugify(name: str) -> str:
+    """Return a lower-case ASCII slug; never empty."""
+    slug = re.sub(r"[^a-z0-9]+", "-", name.lower()).strip("-")
+    return slug[:60] or "dataset"
+
+
+def _key_line(text: str, key: str, block: int | None) -> int | None:
+    """Find the TOML line of ``key`` inside ``[site]`` (block None) or the n-th ``[[datasets]]``."""
+    lines = text.splitlines()
+    current: int | None = -1  # -1: top level, None: [site], n: n-th dataset
+    seen = -1
+    for number, line in enumerate(lines, start=1):
+        stripped = line.strip()
+        if stripped.startswith("[[datasets]]"):
+            seen += 1
+            current = seen
+            continue
+        if stripped.startswith("[site]"):
+            current = None
+            continue
+        if stripped.startswith("["):
+            current = -2
+            continue
+        if current == block or (block is None and current is None):
+            if re.match(rf"""^["']?{re.escape(key)}["']?\s*[=.]""", stripped):
+                return number
+    return None
+
+
+class _Checker:
+    """Collects the context (file, text) so each error sentence names file, key and line."""
+
+    def __init__(self, path: Path, text: str):
+        self.path = path
+        self.text = text
+
+    def fail(self, where: str, key: str, problem: str, fix: str, block: int | None = -1):
+        line = _key_line(self.text, key, block) if block != -1 else None
+        at = f" (line {line})" if line else ""
+        raise SitebuildError(f"{self.path.name}{at}: {where}{key} {problem}; {fix}.")
+
+    def unknown(self, where: str, key: str, allowed: dict, block: int | None):
+        close = difflib.get_close_matches(key, list(allowed), n=1, cutoff=0.5)
+        fix = f"did you mean '{close[0]}'?" if close else "valid keys are " + ", ".join(allowed)
+        line = _key_line(self.text, key, block)
+        at = f" (line {line})" if line else ""
+        hint = f"did you mean '{close[0]}'" if close else "valid keys are " + ", ".join(allowed)
+        del fix
+        raise SitebuildError(f"{self.path.name}{at}: unknown key {where}{key}; {hint}.")
+
+
+def _is_number(value) -> bool:
+    return isinstance(value, int | float) and not isinstance(value, bool)
+
+
+def _inside(root: Path, candidate: Path) -> bool:
+    try:
+        candidate.resolve().relative_to(root.resolve())
+    except ValueError:
+        return False
+    return True
+
+
+def _project_path(check: _Checker, root: Path, where: str, key: str, raw: str, block: int) -> Path:
+    if not raw.strip():
+        check.fail(where, key, "is empty", "give a path relative to the project folder", block)
+    relative = Path(raw)
+    if relative.is_absolute() or ".." in relative.parts:
+        check.fail(
+            where,
+            key,
+            f"'{raw}' points outside the project folder",
+            "give a path inside the project folder, relative to manifest.toml",
+            block,
+        )
+    resolved = root / relative
+    if not _inside(root, resolved):
+        check.fail(
+            where,
+            key,
+            f"'{raw}' resolves outside the project folder (through a link)",
+            "copy the file into the project folder",
+            block,
+        )
+    if not resolved.is_file():
+        check.fail(
+            where,
+            key,
+            f"names '{raw}', which does not exist",
+            "check the spelling or add the file to the project folder",
+            block,
+        )
+    return resolved
+
+
+def _check_types(check: _Checker, table: dict, allowed: dict, where: str, block: int | None):
+    for key, value in table.items():
+        if key not in allowed:
+            check.unknown(where, key, allowed, block)
+        kind = allowed[key]
+        ok = {
+            "text": isinstance(value, str),
+            "number": _is_number(value),
+            "integer": isinstance(value, int) and not isinstance(value, bool),
+            "list of text": isinstance(value, list) and all(isinstance(v, str) for v in value),
+            "table of numbers": isinstance(value, dict)
+            and all(_is_number(v) for v in value.values()),
+            'number or "auto"': _is_number(value) or value == "auto",
+        }[kind]
+        if not ok:
+            shown = type(value).__name__
+            check.fail(where, key, f"must be {kind}, not {shown}", f"write it as {kind}", block)
+
+
+def load_manifest(project: str | Path) -> Manifest:
+    """Return the validated manifest of the project folder ``project``."""
+    root = Path(project)
+    if not root.exists():
+        raise SitebuildError(
+            f"{root}: the project folder does not exist; check the path or create it with "
+            "'sitebuild new'."
+        )
+    if root.is_file() and root.name == MANIFEST_NAME:
+        root = root.parent
+    path = root / MANIFEST_NAME
+    if not path.is_file():
+        raise SitebuildError(
+            f"{root}: no {MANIFEST_NAME} in this folder; add one (see README) or create a "
+            "project with 'sitebuild new'."
+        )
+    raw_bytes = path.read_bytes()
+    try:
+        text = raw_bytes.decode("utf-8-sig")
+    except UnicodeDecodeError as exc:
+        raise SitebuildError(
+            f"{MANIFEST_NAME}: the file is not UTF-8 text (byte {exc.start}); save it as UTF-8."
+        ) from None
+    try:
+        data = tomllib.loads(text)
+    except tomllib.TOMLDecodeError as exc:
+        raise SitebuildError(
+            f"{MANIFEST_NAME}: not valid TOML: {exc}; fix the syntax at that line."
+        ) from None
+    check = _Checker(path, text)
+    for key in data:
+        if key not in ("site", "datasets"):
+            check.unknown("", key, {"site": 0, "datasets": 0}, -1)
+
+    site_table = data.get("site", {})
+    if not isinstance(site_table, dict):
+        check.fail("", "site", "must be a table", "write it as [site]")
+    _check_types(check, site_table, SITE_KEYS, "[site] ", None)
+    site = SiteSettings(**site_table)
+    for key in ("confidence", "alpha"):
+        value = getattr(site, key)
+        if not 0 < value < 1 or math.isnan(value):
+            check.fail(
+                "[site] ", key, f"is {value}, outside (0, 1)", "use e.g. 0.95 or 0.05", None
+            )
+    if site.adjust not in ADJUST_METHODS:
+        close = difflib.get_close_matches(site.adjust.lower(), ADJUST_METHODS, n=1)
+        hint = f" (did you mean '{close[0]}'?)" if close else ""
+        check.fail(
+            "[site] ",
+            "adjust",
+            f"is '{site.adjust}', which is not a method we know{hint}",
+            "use one of " + ", ".join(ADJUST_METHODS),
+            None,
+        )
+    if not 1 <= site.history <= 1000:
+        check.fail("[site] ", "history", "must be between 1 and 1000", "use e.g. 10", None)
+    if not site.title.strip():
+        check.fail("[site] ", "title", "is empty", "give the site a title", None)
+
+    entries = data.get("datasets")
+    if not isinstance(entries, list) or not entries:
+        raise SitebuildError(
+            f"{MANIFEST_NAME}: no [[datasets]] entries; add at least one with name, file, "
+            "group and measures."
+        )
+    datasets = []
+    names: dict[str, int] = {}
+    slugs: dict[str, str] = {}
+    for index, entry in enumerate(entries):
+        if not isinstance(entry, dict):
+            check.fail("", "datasets", "must be an array of tables", "write [[datasets]]")
+        label = f"[[datasets]] #{index + 1} "
+        _check_types(check, entry, DATASET_KEYS, label, index)
+        for required in ("name", "file", "group", "measures"):
+            if required not in entry:
+                raise SitebuildError(
+                    f"{MANIFEST_NAME}: {label.strip()} has no '{required}' key; add "
+                    f"{required} = ... to that entry."
+                )
+        name = entry["name"].strip()
+        if not name:
+            check.fail(label, "name", "is empty", "give the dataset a name", index)
+        label = f"dataset '{name}': "
+        if name in names:
+            check.fail(
+                label,
+                "name",
+                f"is used by dataset #{names[name] + 1} too",
+                "give each dataset its own name",
+                index,
+            )
+        names[name] = index
+        measures = tuple(entry["measures"])
+        if not measures:
+            check.fail(label, "measures", "is empty", "list at least one numeric column", index)
+        if len(set(measures)) != len(measures):
+            check.fail(label, "measures", "lists a column twice", "list each column once", index)
+        if entry["group"] in measures:
+            check.fail(
+                label,
+                "measures",
+                f"includes the group column '{entry['group']}'",
+                "list only numeric columns to compare, not the column that names the groups",
+                index,
+            )
+        x = entry.get("x")
+        if x is not None and x == entry["group"]:
+            check.fail(label, "x", "is the group column", "choose a numeric column", index)
+        path = _project_path(check, root, label, "file", entry["file"], index)
+        notes = entry.get("notes")
+        notes_path = None
+        if notes is not None:
+            notes_path = _project_path(check, root, label, "notes", notes, index)
+        margins = dict(entry.get("equivalence_margin", {}))
+        for measure, margin in margins.items():
+            if measure not in measures:
+                check.fail(
+                    label,
+                    "equivalence_margin",
+                    f"names '{measure}', which is not one of the measures",
+                    "use a measure listed in measures",
+                    index,
+                )
+            if not margin > 0 or math.isinf(margin):
+                check.fail(
+                    label,
+                    "equivalence_margin",
+                    f"for '{measure}' is {margin}",
+                    "give a positive margin in the measure's units",
+                    index,
+                )
+        span = entry.get("smooth_span", 0.75)
+        if span != "auto" and not 0 < span <= 1:
+            check.fail(label, "smooth_span", f"is {span}", "use a share in (0, 1] or \"auto\"", index)
+        degree = entry.get("smooth_degree", 1)
+        if degree not in (1, 2):
+            check.fail(label, "smooth_degree", f"is {degree}", "use 1 or 2", index)
+        robust = entry.get("smooth_robust", 0)
+        if not 0 <= robust <= 10:
+            check.fail(label, "smooth_robust", f"is {robust}", "use 0 to 10 iterations", index)
+        permutations = entry.get("permutations", 0)
+        if not 0 <= permutations <= 1_000_000:
+            check.fail(
+                label, "permutations", f"is {permutations}", "use 0 (off) to 1000000", index
+            )
+        engine = entry.get("engine", "memory")
+        if engine not in ENGINES:
+            check.fail(
+                label, "engine", f"is '{engine}'", "use one of " + ", ".join(ENGINES), index
+            )
+        spec = DatasetSpec(
+            name=name,
+            file=entry["file"],
+            path=path,
+            group=entry["group"],
+            measures=measures,
+            x=x,
+            notes=notes,
+            notes_path=notes_path,
+            reference=entry.get("reference"),
+            equivalence_margin={k: float(v) for k, v in margins.items()},
+            smooth_span=float(span) if span != "auto" else "auto",
+            smooth_degree=degree,
+            smooth_robust=robust,
+            permutations=permutations,
+            engine=engine,
+        )
+        if spec.slug in slugs:
+            check.fail(
+                label,
+                "name",
+                f"makes the same page name as dataset '{slugs[spec.slug]}'",
+                "choose names that differ in letters or digits",
+                index,
+            )
+        slugs[spec.slug] = name
+        datasets.append(spec)
+    return Manifest(root=root, path=path, site=site, datasets=tuple(datasets))

@@ -1,0 +1,41 @@
+"""Sections of a dataset page. Each module here wires stats/ results into results.json keys,
+charts and a layout partial.
+
+A section module provides:
+
+- ``compute(table: Table, settings: SiteSettings, rng: numpy.random.Generator) -> dict``
+  returning the results.json keys it owns for one dataset (JSON-ready: only dict, list,
+  str, int, float, bool, None; never NaN or Infinity — use None with a reason).
+- ``charts(dataset: dict, settings: SiteSettings) -> list[Chart]`` building Vega-Lite specs
+  from that dataset's results (never from raw rows).
+- a layout ``layouts/sections/<name>.html`` rendered with ``ds`` (the dataset's results
+  dict), ``charts`` (dict id -> Chart) and ``site`` (settings).
+"""
+
+from __future__ import annotations
+
+SECTION_NAMES = ("summaries", "relationships", "comparisons")
+
+from dataclasses import dataclass
+
+
+@dataclass(frozen=True)
+class Chart:
+    """One chart on a page: a Vega-Lite spec and its text alternative."""
+
+    id: str  # unique within the page; lower-case letters, digits and '-'
+    title: str
+    description: str  # one plain sentence saying what the chart shows (its text alternative)
+    spec: dict  # Vega-Lite spec, JSON-ready; data inline under fixed, safe field names
+    table: str | None = None  # id of the DataTable on the same page that holds its numbers
+
+
+@dataclass(frozen=True)
+class DataTable:
+    """A table shown on a page and written beside it as CSV."""
+
+    id: str  # unique within the page; lower-case letters, digits and '-'
+    title: str
+    columns: tuple[tuple[str, str], ...]  # (row key, column heading)
+    rows: tuple[dict, ...]
+    caption: str = ""

@@ -1,0 +1,1 @@
+"""Pure statistical functions: arrays in, frozen result dataclasses out. No HTML, no files."""
