@@ -38,7 +38,7 @@ DATASET_KEYS = {
     "notes": "text",
     "reference": "text",
     "equivalence_margin": "table of numbers",
-    "smooth_span": "number or \"auto\"",
+    "smooth_span": 'number or "auto"',
     "smooth_degree": "integer",
     "smooth_robust": "integer",
     "permutations": "integer",
@@ -156,11 +156,9 @@ class _Checker:
 
     def unknown(self, where: str, key: str, allowed: dict, block: int | None):
         close = difflib.get_close_matches(key, list(allowed), n=1, cutoff=0.5)
-        fix = f"did you mean '{close[0]}'?" if close else "valid keys are " + ", ".join(allowed)
         line = _key_line(self.text, key, block)
         at = f" (line {line})" if line else ""
         hint = f"did you mean '{close[0]}'" if close else "valid keys are " + ", ".join(allowed)
-        del fix
         raise SitebuildError(f"{self.path.name}{at}: unknown key {where}{key}; {hint}.")
 
 
@@ -269,9 +267,7 @@ def load_manifest(project: str | Path) -> Manifest:
     for key in ("confidence", "alpha"):
         value = getattr(site, key)
         if not 0 < value < 1 or math.isnan(value):
-            check.fail(
-                "[site] ", key, f"is {value}, outside (0, 1)", "use e.g. 0.95 or 0.05", None
-            )
+            check.fail("[site] ", key, f"is {value}, outside (0, 1)", "use e.g. 0.95 or 0.05", None)
     if site.adjust not in ADJUST_METHODS:
         close = difflib.get_close_matches(site.adjust.lower(), ADJUST_METHODS, n=1)
         hint = f" (did you mean '{close[0]}'?)" if close else ""
@@ -336,7 +332,7 @@ def load_manifest(project: str | Path) -> Manifest:
         x = entry.get("x")
         if x is not None and x == entry["group"]:
             check.fail(label, "x", "is the group column", "choose a numeric column", index)
-        path = _project_path(check, root, label, "file", entry["file"], index)
+        data_path = _project_path(check, root, label, "file", entry["file"], index)
         notes = entry.get("notes")
         notes_path = None
         if notes is not None:
@@ -361,7 +357,7 @@ def load_manifest(project: str | Path) -> Manifest:
                 )
         span = entry.get("smooth_span", 0.75)
         if span != "auto" and not 0 < span <= 1:
-            check.fail(label, "smooth_span", f"is {span}", "use a share in (0, 1] or \"auto\"", index)
+            check.fail(label, "smooth_span", f"is {span}", 'use a share in (0, 1] or "auto"', index)
         degree = entry.get("smooth_degree", 1)
         if degree not in (1, 2):
             check.fail(label, "smooth_degree", f"is {degree}", "use 1 or 2", index)
@@ -370,18 +366,14 @@ def load_manifest(project: str | Path) -> Manifest:
             check.fail(label, "smooth_robust", f"is {robust}", "use 0 to 10 iterations", index)
         permutations = entry.get("permutations", 0)
         if not 0 <= permutations <= 1_000_000:
-            check.fail(
-                label, "permutations", f"is {permutations}", "use 0 (off) to 1000000", index
-            )
+            check.fail(label, "permutations", f"is {permutations}", "use 0 (off) to 1000000", index)
         engine = entry.get("engine", "memory")
         if engine not in ENGINES:
-            check.fail(
-                label, "engine", f"is '{engine}'", "use one of " + ", ".join(ENGINES), index
-            )
+            check.fail(label, "engine", f"is '{engine}'", "use one of " + ", ".join(ENGINES), index)
         spec = DatasetSpec(
             name=name,
             file=entry["file"],
-            path=path,
+            path=data_path,
             group=entry["group"],
             measures=measures,
             x=x,

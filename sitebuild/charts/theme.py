@@ -41,8 +41,15 @@ CONFIG = {
         "tickColor": MUTED,
         "titlePadding": 8,
     },
-    "legend": {"labelColor": INK, "titleColor": INK, "labelFontSize": 12, "titleFontSize": 12,
-               "orient": "bottom", "direction": "horizontal", "columns": 4},
+    "legend": {
+        "labelColor": INK,
+        "titleColor": INK,
+        "labelFontSize": 12,
+        "titleFontSize": 12,
+        "orient": "bottom",
+        "direction": "horizontal",
+        "columns": 4,
+    },
     "title": {"color": INK, "fontSize": 14, "fontWeight": 600, "anchor": "start"},
     "header": {"labelColor": INK, "titleColor": INK, "labelFontSize": 12},
     "mark": {"color": PALETTE[0]},
@@ -65,4 +72,7 @@ def themed(spec: dict) -> dict:
 
 def group_colour_scale(groups: list[str]) -> dict:
     """Return a Vega-Lite scale that gives each group the same colour on every chart."""
-    return {"domain": list(groups), "range": [PALETTE[i % len(PALETTE)] for i in range(len(groups))]}
+    return {
+        "domain": list(groups),
+        "range": [PALETTE[i % len(PALETTE)] for i in range(len(groups))],
+    }

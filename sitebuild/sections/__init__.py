@@ -39,3 +39,4 @@ class DataTable:
     columns: tuple[tuple[str, str], ...]  # (row key, column heading)
     rows: tuple[dict, ...]
     caption: str = ""
+    href: str | None = None  # set by the renderer: where its CSV is written in the site

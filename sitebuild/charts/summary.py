@@ -1,0 +1,212 @@
+"""Charts of per-group summaries: mean intervals, histograms and box views."""
+
+from __future__ import annotations
+
+from .theme import INK, MUTED, group_colour_scale, themed
+
+ROW_HEIGHT = 26
+
+
+def _group_axis(groups: list[str]) -> dict:
+    return {"field": "group", "type": "nominal", "sort": list(groups), "title": None}
+
+
+def mean_intervals(rows: list[dict], all_groups: list[str], measure: str) -> dict:
+    """Return a dot-and-interval chart: each group's mean with its confidence interval."""
+    values = [
+        {
+            "group": r["group"],
+            "mean": r["mean"],
+            "low": r["ci_low"],
+            "high": r["ci_high"],
+            "n": r["n"],
+        }
+        for r in rows
+        if r["mean"] is not None
+    ]
+    shown = [r["group"] for r in rows]
+    colour = {
+        "field": "group",
+        "type": "nominal",
+        "scale": group_colour_scale(all_groups),
+        "legend": None,
+    }
+    y = _group_axis(shown)
+    tooltip = [
+        {"field": "group", "title": "Group"},
+        {"field": "mean", "title": "Mean", "format": ".4~g"},
+        {"field": "low", "title": "CI low", "format": ".4~g"},
+        {"field": "high", "title": "CI high", "format": ".4~g"},
+        {"field": "n", "title": "n"},
+    ]
+    return themed(
+        {
+            "data": {"values": values},
+            "height": {"step": ROW_HEIGHT},
+            "width": "container",
+            "encoding": {"y": y},
+            "layer": [
+                {
+                    "mark": {"type": "rule", "strokeWidth": 2},
+                    "encoding": {
+                        "x": {
+                            "field": "low",
+                            "type": "quantitative",
+                            "title": measure,
+                            "scale": {"zero": False},
+                        },
+                        "x2": {"field": "high"},
+                        "color": colour,
+                        "tooltip": tooltip,
+                    },
+                },
+                {
+                    "mark": {
+                        "type": "point",
+                        "filled": True,
+                        "size": 70,
+                        "stroke": INK,
+                        "strokeWidth": 0.5,
+                    },
+                    "encoding": {
+                        "x": {"field": "mean", "type": "quantitative"},
+                        "color": colour,
+                        "tooltip": tooltip,
+                    },
+                },
+            ],
+        }
+    )
+
+
+def histograms(dist: dict, shown: list[str], all_groups: list[str], measure: str) -> dict:
+    """Return small-multiple histograms on shared bins, one row per group, as shares."""
+    edges = dist["edges"]
+    values = []
+    for g in dist["groups"]:
+        if g["group"] not in shown:
+            continue
+        total = sum(g["counts"]) or 1
+        for i, count in enumerate(g["counts"]):
+            values.append(
+                {
+                    "group": g["group"],
+                    "start": edges[i],
+                    "end": edges[i + 1],
+                    "count": count,
+                    "share": count / total,
+                }
+            )
+    return themed(
+        {
+            "data": {"values": values},
+            "mark": {"type": "rect", "stroke": "#ffffff", "strokeWidth": 0.5},
+            "width": "container",
+            "height": 60,
+            "encoding": {
+                "x": {
+                    "field": "start",
+                    "type": "quantitative",
+                    "title": measure,
+                    "scale": {"zero": False},
+                },
+                "x2": {"field": "end"},
+                "y": {
+                    "field": "share",
+                    "type": "quantitative",
+                    "title": "Share",
+                    "axis": {"format": "~%", "tickCount": 2},
+                },
+                "row": {
+                    "field": "group",
+                    "type": "nominal",
+                    "sort": list(shown),
+                    "title": None,
+                    "header": {"labelAngle": 0, "labelAlign": "left", "labelLimit": 160},
+                },
+                "color": {
+                    "field": "group",
+                    "type": "nominal",
+                    "scale": group_colour_scale(all_groups),
+                    "legend": None,
+                },
+                "tooltip": [
+                    {"field": "group", "title": "Group"},
+                    {"field": "start", "title": "From", "format": ".4~g"},
+                    {"field": "end", "title": "To", "format": ".4~g"},
+                    {"field": "count", "title": "Count"},
+                    {"field": "share", "title": "Share", "format": ".1%"},
+                ],
+            },
+            "resolve": {"scale": {"y": "independent"}},
+        }
+    )
+
+
+def boxes(dist: dict, shown: list[str], all_groups: list[str], measure: str) -> dict:
+    """Return horizontal box views from precomputed quartiles, whiskers and outlier points."""
+    boxes_data, points = [], []
+    for g in dist["groups"]:
+        if g["group"] not in shown or g["median"] is None:
+            continue
+        boxes_data.append(
+            {k: g[k] for k in ("group", "q1", "median", "q3", "whisker_low", "whisker_high")}
+        )
+        points.extend({"group": g["group"], "value": v} for v in g["outlier_points"])
+    colour = {
+        "field": "group",
+        "type": "nominal",
+        "scale": group_colour_scale(all_groups),
+        "legend": None,
+    }
+    y = _group_axis(shown)
+    x_title = {"title": measure, "scale": {"zero": False}}
+    return themed(
+        {
+            "height": {"step": ROW_HEIGHT},
+            "width": "container",
+            "encoding": {"y": y},
+            "layer": [
+                {
+                    "data": {"values": boxes_data},
+                    "mark": {"type": "rule", "color": MUTED},
+                    "encoding": {
+                        "x": {"field": "whisker_low", "type": "quantitative", **x_title},
+                        "x2": {"field": "whisker_high"},
+                    },
+                },
+                {
+                    "data": {"values": boxes_data},
+                    "mark": {"type": "bar", "size": 14, "opacity": 0.85},
+                    "encoding": {
+                        "x": {"field": "q1", "type": "quantitative"},
+                        "x2": {"field": "q3"},
+                        "color": colour,
+                        "tooltip": [
+                            {"field": "group", "title": "Group"},
+                            {"field": "q1", "title": "Q1", "format": ".4~g"},
+                            {"field": "median", "title": "Median", "format": ".4~g"},
+                            {"field": "q3", "title": "Q3", "format": ".4~g"},
+                        ],
+                    },
+                },
+                {
+                    "data": {"values": boxes_data},
+                    "mark": {"type": "tick", "color": INK, "size": 16, "thickness": 2},
+                    "encoding": {"x": {"field": "median", "type": "quantitative"}},
+                },
+                {
+                    "data": {"values": points},
+                    "mark": {"type": "point", "size": 18, "opacity": 0.7, "filled": False},
+                    "encoding": {
+                        "x": {"field": "value", "type": "quantitative"},
+                        "color": colour,
+                        "tooltip": [
+                            {"field": "group", "title": "Group"},
+                            {"field": "value", "title": "Value", "format": ".4~g"},
+                        ],
+                    },
+                },
+            ],
+        }
+    )

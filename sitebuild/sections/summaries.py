@@ -1,0 +1,196 @@
+"""Per-group summaries, distribution bins and box statistics for every measure."""
+
+from __future__ import annotations
+
+import numpy as np
+
+from ..ingest import Table
+from ..manifest import SiteSettings
+from ..stats.summary import NORMAL_WITHIN, Summary, describe_sorted, histogram_edges
+from . import Chart, DataTable
+
+MAX_OUTLIER_POINTS = 20  # per side per group: the most extreme values, enough to see them
+MAX_CHART_GROUPS = 30  # groups drawn in distribution charts; tables keep every group
+
+SUMMARY_FIELDS = (
+    "n", "missing", "mean", "sd", "se", "ci_low", "ci_high", "median", "median_ci_low",
+    "median_ci_high", "q1", "q3", "iqr", "min", "max", "skewness", "excess_kurtosis",
+    "share_within_1sd", "share_within_2sd", "outliers", "normality_test", "normality_p",
+)  # fmt: skip
+
+
+def _row(group: str | None, measure: str, summary: Summary) -> dict:
+    row = {"group": group, "measure": measure}
+    for key in SUMMARY_FIELDS:
+        row[key] = getattr(summary, key)
+    row["median_ci_level"] = summary.median_ci_level
+    row["reasons"] = dict(summary.reasons)
+    return row
+
+
+def _sorted_by_group(values: np.ndarray, codes: np.ndarray, n_groups: int):
+    keep = ~np.isnan(values)
+    kept, kept_codes = values[keep], codes[keep]
+    order = np.lexsort((kept, kept_codes))
+    ordered = kept[order]
+    bounds = np.searchsorted(kept_codes[order], np.arange(n_groups + 1))
+    missing = np.bincount(codes[~keep], minlength=n_groups)
+    return ordered, bounds, missing
+
+
+def _counts(sorted_values: np.ndarray, edges: np.ndarray) -> list[int]:
+    positions = np.searchsorted(sorted_values, edges[:-1], side="left")
+    positions = np.append(positions, np.searchsorted(sorted_values, edges[-1], side="right"))
+    return [int(c) for c in np.diff(positions)]
+
+
+def compute(table: Table, settings: SiteSettings, rng, partial: dict) -> dict:
+    """Return ``summaries`` (every measure × group, plus all groups) and ``distributions``."""
+    del rng, partial  # summaries are deterministic and need nothing computed before them
+    level = settings.confidence
+    summaries: list[dict] = []
+    distributions: list[dict] = []
+    n_groups = len(table.groups)
+    for measure in table.spec.measures:
+        values = table.values(measure)
+        ordered, bounds, missing = _sorted_by_group(values, table.codes, n_groups)
+        edges = histogram_edges(ordered)
+        per_group = []
+        for index, group in enumerate(table.groups):
+            chunk = ordered[bounds[index] : bounds[index + 1]]
+            summary = describe_sorted(chunk, level, missing=int(missing[index]))
+            summaries.append(_row(group, measure, summary))
+            outliers_low, outliers_high = [], []
+            if summary.whisker_low is not None:
+                low_n = int(np.searchsorted(chunk, summary.whisker_low, side="left"))
+                outliers_low = chunk[: min(low_n, MAX_OUTLIER_POINTS)].tolist()
+                high_start = int(np.searchsorted(chunk, summary.whisker_high, side="right"))
+                outliers_high = chunk[max(high_start, len(chunk) - MAX_OUTLIER_POINTS) :].tolist()
+            per_group.append(
+                {
+                    "group": group,
+                    "counts": _counts(chunk, edges),
+                    "q1": summary.q1,
+                    "median": summary.median,
+                    "q3": summary.q3,
+                    "whisker_low": summary.whisker_low,
+                    "whisker_high": summary.whisker_high,
+                    "outlier_points": outliers_low + outliers_high,
+                    "outliers_total": summary.outliers,
+                }
+            )
+        everything = np.sort(ordered)
+        overall = describe_sorted(everything, level, missing=int(missing.sum()))
+        summaries.append(_row(None, measure, overall))
+        distributions.append(
+            {
+                "measure": measure,
+                "edges": [float(e) for e in edges],
+                "all_counts": _counts(everything, edges),
+                "groups": per_group,
+            }
+        )
+    return {
+        "summaries": summaries,
+        "distributions": distributions,
+        "normal_reference": {"within_1sd": NORMAL_WITHIN[1], "within_2sd": NORMAL_WITHIN[2]},
+        "chebyshev_floor": {"within_1sd": 0.0, "within_2sd": 0.75},
+    }
+
+
+def _shown_groups(ds: dict, measure: str) -> list[str]:
+    """Groups drawn in charts: all of them, or the largest MAX_CHART_GROUPS by n."""
+    rows = [r for r in ds["summaries"] if r["measure"] == measure and r["group"] is not None]
+    if len(rows) <= MAX_CHART_GROUPS:
+        return [r["group"] for r in rows]
+    largest = sorted(rows, key=lambda r: -r["n"])[:MAX_CHART_GROUPS]
+    keep = {r["group"] for r in largest}
+    return [g for g in ds["groups"] if g in keep]
+
+
+def charts(ds: dict, settings: SiteSettings) -> list[Chart]:
+    """Return, per measure, the mean-interval, histogram and box charts."""
+    from ..charts import summary as draw
+
+    out = []
+    level = f"{settings.confidence:.0%}"
+    for mi, measure in enumerate(ds["measures"]):
+        shown = _shown_groups(ds, measure)
+        rows = [r for r in ds["summaries"] if r["measure"] == measure and r["group"] in shown]
+        dist = next(d for d in ds["distributions"] if d["measure"] == measure)
+        out.append(
+            Chart(
+                id=f"sum-{mi}-means",
+                title=f"Mean of {measure} by group",
+                description=(
+                    f"Each group's mean of {measure} with its {level} confidence interval; "
+                    "intervals that overlap a lot suggest differences sampling noise could produce."
+                ),
+                spec=draw.mean_intervals(rows, ds["groups"], measure),
+                table=f"sum-{mi}",
+            )
+        )
+        out.append(
+            Chart(
+                id=f"sum-{mi}-hist",
+                title=f"Distribution of {measure}",
+                description=(
+                    f"Histograms of {measure} per group on shared bins, as the share of each "
+                    "group's values, so groups of different sizes compare fairly."
+                ),
+                spec=draw.histograms(dist, shown, ds["groups"], measure),
+                table=f"sum-{mi}",
+            )
+        )
+        out.append(
+            Chart(
+                id=f"sum-{mi}-box",
+                title=f"Spread of {measure}",
+                description=(
+                    f"Box view of {measure}: the box spans the middle half of values (q1 to q3), "
+                    "the line is the median, whiskers reach the furthest values within 1.5 IQR, "
+                    "and dots are values beyond."
+                ),
+                spec=draw.boxes(dist, shown, ds["groups"], measure),
+                table=f"sum-{mi}",
+            )
+        )
+    return out
+
+
+TABLE_COLUMNS = (
+    ("group", "Group"), ("n", "n"), ("missing", "Missing"), ("mean", "Mean"), ("sd", "SD"),
+    ("se", "SE"), ("ci_low", "CI low"), ("ci_high", "CI high"), ("median", "Median"),
+    ("median_ci_low", "Median CI low"), ("median_ci_high", "Median CI high"), ("q1", "Q1"),
+    ("q3", "Q3"), ("iqr", "IQR"), ("min", "Min"), ("max", "Max"), ("skewness", "Skewness"),
+    ("excess_kurtosis", "Excess kurtosis"), ("share_within_1sd", "Within 1 SD"),
+    ("share_within_2sd", "Within 2 SD"), ("outliers", "Beyond fences"),
+    ("normality_test", "Normality test"), ("normality_p", "Normality p"),
+)  # fmt: skip
+
+
+def tables(ds: dict, settings: SiteSettings) -> list[DataTable]:
+    """Return one summary table per measure (all groups, then all rows combined)."""
+    out = []
+    for mi, measure in enumerate(ds["measures"]):
+        rows = []
+        for r in ds["summaries"]:
+            if r["measure"] != measure:
+                continue
+            row = dict(r)
+            row["group"] = r["group"] if r["group"] is not None else "All groups"
+            rows.append(row)
+        out.append(
+            DataTable(
+                id=f"sum-{mi}",
+                title=f"Summary of {measure} by group",
+                columns=TABLE_COLUMNS,
+                rows=tuple(rows),
+                caption=(
+                    f"CI: {settings.confidence:.0%} interval for the mean (Student's t). Median CI: "
+                    "distribution-free interval from order statistics. Quartiles by linear "
+                    "interpolation (Hyndman & Fan type 7)."
+                ),
+            )
+        )
+    return out

@@ -1,0 +1,245 @@
+"""Pages from results: jinja2 layouts + results + chart specs → a dict of site files (bytes)."""
+
+from __future__ import annotations
+
+import csv
+import dataclasses
+import io
+import json
+import math
+import os
+import re
+from functools import lru_cache
+from importlib import resources
+from pathlib import Path
+
+from .. import __version__
+from ..manifest import Manifest
+from ..results import dumps, schema
+
+ASSET_BUNDLE = "assets/vega-bundle.js"
+MARKER = ".sitebuild-site"
+NOTE_TAGS = {
+    "a", "abbr", "b", "blockquote", "br", "code", "dd", "del", "div", "dl", "dt", "em", "h1",
+    "h2", "h3", "h4", "h5", "h6", "hr", "i", "kbd", "li", "ol", "p", "pre", "s", "small",
+    "span", "strong", "sub", "sup", "table", "tbody", "td", "tfoot", "th", "thead", "tr", "ul",
+}  # fmt: skip
+
+
+def packaged_layouts() -> Path:
+    """Return the layouts folder: inside the installed package, or the repo's top level."""
+    inside = resources.files("sitebuild") / "layouts"
+    if inside.is_dir():
+        return Path(str(inside))
+    return Path(__file__).resolve().parents[2] / "layouts"
+
+
+def _num(value, digits: int = 4) -> str:
+    """Format a number for a page: significant digits, thousands separators, '—' for None."""
+    if value is None:
+        return "—"
+    if isinstance(value, bool):
+        return "yes" if value else "no"
+    if isinstance(value, int):
+        return f"{value:,}"
+    if not math.isfinite(value):
+        return "—"
+    if value == 0:
+        return "0"
+    magnitude = math.floor(math.log10(abs(value)))
+    if magnitude >= 15 or magnitude <= -5:
+        return f"{value:.{digits - 1}e}"
+    decimals = max(0, digits - 1 - magnitude)
+    text = f"{value:,.{decimals}f}"
+    if "." in text:
+        text = text.rstrip("0").rstrip(".")
+    return text
+
+
+def _pval(value) -> str:
+    if value is None:
+        return "—"
+    if value < 0.001:
+        return "< 0.001"
+    return f"{value:.3f}"
+
+
+def _pct(value, decimals: int = 1) -> str:
+    if value is None:
+        return "—"
+    return f"{100 * value:.{decimals}f} %"
+
+
+def _inline_json(data) -> str:
+    """Return JSON safe inside a <script> element: '<', '>' and '&' are escaped as \\u00XX."""
+    from markupsafe import Markup
+
+    text = json.dumps(
+        data, sort_keys=True, allow_nan=False, ensure_ascii=False, separators=(",", ":")
+    )
+    text = text.replace("<", "\\u003c").replace(">", "\\u003e").replace("&", "\\u0026")
+    # U+2028/2029 are line ends to old JavaScript parsers; escaping them costs nothing.
+    text = text.replace("\u2028", "\\u2028").replace("\u2029", "\\u2029")
+    # Safe for a <script> element: nothing in it can close the element or start markup.
+    return Markup(text)
+
+
+def sanitise_notes(text: str) -> str:
+    """Return notes markdown as HTML with only ordinary formatting, links and tables kept."""
+    import markdown
+    import nh3
+
+    html = markdown.markdown(text, extensions=["tables", "sane_lists"], output_format="html")
+    # Notes sit under the page's own title: demote their headings two levels (h1 -> h3).
+    html = re.sub(r"<(/?)h([1-6])\b", lambda m: f"<{m[1]}h{min(6, int(m[2]) + 2)}", html)
+    return nh3.clean(
+        html,
+        tags=NOTE_TAGS,
+        attributes={"a": {"href", "title"}, "th": {"align"}, "td": {"align"}},
+        url_schemes={"http", "https", "mailto"},
+        link_rel="noopener noreferrer",
+    )
+
+
+def environment(project_layouts: Path | None = None):
+    """Return the jinja2 environment: autoescape on, project layouts override packaged ones."""
+    import jinja2
+
+    paths = [str(p) for p in (project_layouts, packaged_layouts()) if p and p.is_dir()]
+    env = jinja2.Environment(
+        loader=jinja2.FileSystemLoader(paths),
+        autoescape=True,
+        undefined=jinja2.StrictUndefined,
+        keep_trailing_newline=True,
+        trim_blocks=True,
+        lstrip_blocks=True,
+    )
+    env.filters.update(num=_num, pval=_pval, pct=_pct, inline_json=_inline_json)
+    return env
+
+
+@lru_cache(maxsize=1)
+def chart_bundle() -> bytes:
+    """Return Vega, Vega-Lite and vega-embed as one classic script (from vl-convert)."""
+    import vl_convert
+
+    return vl_convert.javascript_bundle().encode("utf-8")
+
+
+def _csv(table) -> bytes:
+    buffer = io.StringIO()
+    writer = csv.writer(buffer, lineterminator="\n")
+    writer.writerow([heading for _, heading in table.columns])
+    for row in table.rows:
+        writer.writerow(
+            ["" if row.get(key) is None else _csv_cell(row.get(key)) for key, _ in table.columns]
+        )
+    # A BOM makes spreadsheet programs read the UTF-8 labels correctly.
+    return ("\ufeff" + buffer.getvalue()).encode("utf-8")
+
+
+def _csv_cell(value):
+    if isinstance(value, float):
+        return repr(value)
+    text = str(value)
+    # Spreadsheets run cells starting with these as formulas; a leading quote keeps them text.
+    if text[:1] in ("=", "+", "-", "@") and not _looks_numeric(text):
+        return "'" + text
+    return text
+
+
+def _looks_numeric(text: str) -> bool:
+    try:
+        float(text)
+    except ValueError:
+        return False
+    return True
+
+
+def build_time() -> str | None:
+    """Return the build time to print, only when SOURCE_DATE_EPOCH provides it (reproducible)."""
+    epoch = os.environ.get("SOURCE_DATE_EPOCH")
+    if not epoch:
+        return None
+    import datetime
+
+    try:
+        moment = datetime.datetime.fromtimestamp(int(epoch), tz=datetime.UTC)
+    except (ValueError, OverflowError):
+        return None
+    return moment.strftime("%Y-%m-%d %H:%M UTC")
+
+
+def page_parts(ds: dict, settings) -> tuple[dict, dict]:
+    """Return (charts by id, tables by id) for one dataset from every section."""
+    from ..pipeline import section_modules
+
+    charts, tables = {}, {}
+    for module in section_modules():
+        for chart in module.charts(ds, settings):
+            charts[chart.id] = chart
+        for table in module.tables(ds, settings):
+            tables[table.id] = table
+    return charts, tables
+
+
+def render_site(
+    results: dict, manifest: Manifest, extra_pages: dict | None = None
+) -> dict[str, bytes]:
+    """Return every file of the site, path relative to the site root → bytes."""
+    env = environment(manifest.root / "layouts")
+    settings = manifest.site
+    files: dict[str, bytes] = {}
+    common = {
+        "results": results,
+        "site": settings,
+        "version": __version__,
+        "built_at": build_time(),
+        "nav": [(ds["name"], f"{ds['slug']}.html") for ds in results["datasets"]],
+    }
+    for ds, spec in zip(results["datasets"], manifest.datasets, strict=True):
+        charts, tables = page_parts(ds, settings)
+        for key, table in list(tables.items()):
+            name = f"tables/{ds['slug']}-{table.id}.csv"
+            files[name] = _csv(table)
+            tables[key] = dataclasses.replace(table, href=name)
+        notes_html = None
+        if spec.notes_path is not None:
+            notes_html = sanitise_notes(
+                spec.notes_path.read_text(encoding="utf-8", errors="replace")
+            )
+        page = env.get_template("dataset.html").render(
+            **common,
+            ds=ds,
+            charts=charts,
+            tables=tables,
+            notes_html=notes_html,
+            chart_specs={cid: c.spec for cid, c in charts.items()},
+            current=f"{ds['slug']}.html",
+        )
+        files[f"{ds['slug']}.html"] = page.encode("utf-8")
+    for name, (template, context) in (extra_pages or {}).items():
+        files[name] = (
+            env.get_template(template)
+            .render(**common, **context, current=name, chart_specs={})
+            .encode("utf-8")
+        )
+    files["index.html"] = (
+        env.get_template("index.html")
+        .render(**common, current="index.html", chart_specs={})
+        .encode("utf-8")
+    )
+    layouts = packaged_layouts()
+    for asset in ("style.css", "site.js"):
+        override = manifest.root / "layouts" / asset
+        source = override if override.is_file() else layouts / asset
+        files[f"assets/{asset}"] = source.read_bytes()
+    files[ASSET_BUNDLE] = chart_bundle()
+    files["results.json"] = (dumps(results) + "\n").encode("utf-8")
+    files["results.schema.json"] = (json.dumps(schema(), indent=1, sort_keys=True) + "\n").encode(
+        "utf-8"
+    )
+    files[MARKER] = (
+        f"This folder is a site written by sitebuild {__version__}. A rebuild replaces it whole.\n".encode()
+    )
+    return files
