@@ -144,7 +144,9 @@ def _decode_head(path: Path, raw: bytes) -> tuple[str, str, list[str]]:
     return (
         "latin-1",
         raw.decode("latin-1"),
-        [f"{path.name} is not UTF-8; it was read as Latin-1 — check that accented labels look right."],
+        [
+            f"{path.name} is not UTF-8; it was read as Latin-1 — check that accented labels look right."
+        ],
     )
 
 
@@ -182,7 +184,11 @@ def _check_columns(spec: DatasetSpec, header: list[str]) -> None:
     for name in header:
         seen[name] = seen.get(name, 0) + 1
     available = ", ".join(f"'{h}'" for h in header[:40]) + (" ..." if len(header) > 40 else "")
-    for role, name in [("group", spec.group), *(("measures", m) for m in spec.measures), ("x", spec.x)]:
+    for role, name in [
+        ("group", spec.group),
+        *(("measures", m) for m in spec.measures),
+        ("x", spec.x),
+    ]:
         if name is None:
             continue
         if name not in seen:
@@ -233,7 +239,10 @@ def _group_labels(raw) -> np.ndarray:
     if raw.dtype.kind == "f":
         # A numeric group code stored as float: 1.0 -> "1", keep others as written.
         out = np.array(
-            [None if pd.isna(v) else (str(int(v)) if float(v).is_integer() else repr(v)) for v in raw],
+            [
+                None if pd.isna(v) else (str(int(v)) if float(v).is_integer() else repr(v))
+                for v in raw
+            ],
             dtype=object,
         )
         return out
@@ -252,7 +261,9 @@ def read_frame(spec: DatasetSpec):
     suffix = path.suffix.lower()
     needed = _needed(spec)
     if path.stat().st_size == 0:
-        raise SitebuildError(f"{spec.file}: the file is empty; export the data again with a header row.")
+        raise SitebuildError(
+            f"{spec.file}: the file is empty; export the data again with a header row."
+        )
     if suffix in PARQUET_SUFFIXES:
         import pyarrow.parquet as pq
 
@@ -286,7 +297,9 @@ def read_frame(spec: DatasetSpec):
     first = head.splitlines()[0] if head.splitlines() else ""
     header = next(csv.reader([first], delimiter=delimiter), [])
     if not any(h.strip() for h in header):
-        raise SitebuildError(f"{spec.file}: the first line is empty; the first line must name the columns.")
+        raise SitebuildError(
+            f"{spec.file}: the first line is empty; the first line must name the columns."
+        )
     _check_columns(spec, header)
     decimal_comma = delimiter == ";"
     numeric = [c for c in needed if c != spec.group]
@@ -324,7 +337,9 @@ def read_frame(spec: DatasetSpec):
             "fields that contain the delimiter."
         ) from None
     except pd.errors.EmptyDataError:
-        raise SitebuildError(f"{spec.file}: the file has no columns; export it again with a header row.") from None
+        raise SitebuildError(
+            f"{spec.file}: the file has no columns; export it again with a header row."
+        ) from None
     frame.columns = [header[p] for p in sorted(positions)]
     del numeric
     return frame[needed], encoding, delimiter, warnings
@@ -335,7 +350,9 @@ def read_table(spec: DatasetSpec) -> Table:
     frame, encoding, delimiter, warnings = read_frame(spec)
     rows_read = int(len(frame))
     labels = _group_labels(frame[spec.group])
-    has_group = np.array([v is not None for v in labels], dtype=bool) if rows_read else np.zeros(0, bool)
+    has_group = (
+        np.array([v is not None for v in labels], dtype=bool) if rows_read else np.zeros(0, bool)
+    )
     import pandas as pd
 
     decimal_comma = delimiter == ";"
@@ -373,4 +390,6 @@ def read_table(spec: DatasetSpec) -> Table:
         delimiter=delimiter,
         warnings=tuple(warnings),
     )
-    return Table(spec=spec, groups=groups, codes=codes.astype(np.int32), columns=columns, report=report)
+    return Table(
+        spec=spec, groups=groups, codes=codes.astype(np.int32), columns=columns, report=report
+    )

@@ -14,9 +14,9 @@ A section module provides:
 
 from __future__ import annotations
 
-SECTION_NAMES = ("summaries", "relationships", "comparisons")
-
 from dataclasses import dataclass
+
+SECTION_NAMES = ("summaries", "relationships", "comparisons")
 
 
 @dataclass(frozen=True)
