@@ -159,7 +159,8 @@ class _Checker:
         line = _key_line(self.text, key, block)
         at = f" (line {line})" if line else ""
         hint = f"did you mean '{close[0]}'" if close else "valid keys are " + ", ".join(allowed)
-        raise SitebuildError(f"{self.path.name}{at}: unknown key {where}{key}; {hint}.")
+        place = f" in {where.strip()}" if where.strip() else ""
+        raise SitebuildError(f"{self.path.name}{at}: unknown key '{key}'{place}; {hint}.")
 
 
 def _is_number(value) -> bool:

@@ -1,0 +1,58 @@
+"""Shared fixtures: small projects written into tmp_path, and the built example site."""
+
+from __future__ import annotations
+
+import shutil
+import textwrap
+from pathlib import Path
+
+import pytest
+
+REPO = Path(__file__).resolve().parents[1]
+EXAMPLE = REPO / "example_project"
+
+
+def write_project(root: Path, manifest: str, files: dict[str, str | bytes]) -> Path:
+    """Write a project folder: manifest text (dedented) and data files; return the folder."""
+    root.mkdir(parents=True, exist_ok=True)
+    (root / "manifest.toml").write_text(textwrap.dedent(manifest), encoding="utf-8")
+    for name, content in files.items():
+        path = root / name
+        path.parent.mkdir(parents=True, exist_ok=True)
+        if isinstance(content, bytes):
+            path.write_bytes(content)
+        else:
+            path.write_text(content, encoding="utf-8")
+    return root
+
+
+SIMPLE_MANIFEST = """
+[site]
+title = "Test site"
+
+[[datasets]]
+name = "Lines"
+file = "data/lines.csv"
+group = "line"
+measures = ["width", "weight"]
+"""
+
+SIMPLE_CSV = "line,width,weight\nA,1.0,10\nA,2.0,11\nA,3.0,12\nB,2.5,13\nB,3.5,\nB,4.5,15\n"
+
+
+@pytest.fixture
+def simple_project(tmp_path) -> Path:
+    return write_project(tmp_path / "proj", SIMPLE_MANIFEST, {"data/lines.csv": SIMPLE_CSV})
+
+
+@pytest.fixture(scope="session")
+def example_site(tmp_path_factory) -> Path:
+    """The example project built once per test session into a temporary folder."""
+    import sitebuild
+
+    work = tmp_path_factory.mktemp("example")
+    project = work / "example_project"
+    shutil.copytree(EXAMPLE, project, ignore=shutil.ignore_patterns("site_output", ".sitebuild*"))
+    out = work / "site"
+    sitebuild.build(project, out=out)
+    return out

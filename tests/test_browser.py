@@ -1,0 +1,93 @@
+"""Every page opened in Debian's Chromium from file://, network refused: charts draw, no errors."""
+
+from __future__ import annotations
+
+import os
+import shutil
+import zipfile
+from pathlib import Path
+
+import pytest
+
+from browser import LAUNCH_ARGS, chromium_path, visit_pages
+from conftest import write_project
+
+pytestmark = pytest.mark.browser
+
+
+@pytest.fixture(scope="module")
+def browser():
+    path = chromium_path()
+    if path is None:
+        if os.environ.get("CI"):
+            pytest.fail("Chromium is missing: install the Debian package 'chromium' (CI must not skip).")
+        pytest.skip("Chromium is not installed (set CI=1 to make this a failure)")
+    from playwright.sync_api import sync_playwright
+
+    with sync_playwright() as pw:
+        launched = pw.chromium.launch(executable_path=path, args=LAUNCH_ARGS, headless=True)
+        yield launched
+        launched.close()
+
+
+def assert_clean(visits):
+    assert visits
+    for v in visits:
+        name = v.url.rsplit("/", 1)[-1]
+        assert v.page_errors == [], f"{name}: {v.page_errors}"
+        assert v.console_errors == [], f"{name}: {v.console_errors}"
+        assert v.blocked == [], f"{name} tried the network: {v.blocked}"
+        assert v.dialogs == [], f"{name} opened a dialog: {v.dialogs}"
+        assert v.failed_charts == [], f"{name}: {v.failed_charts}"
+        assert v.drawn >= v.charts, f"{name}: {v.drawn} of {v.charts} charts drawn"
+
+
+def test_every_example_page_draws_every_chart_offline(browser, example_site):
+    pages = sorted(example_site.glob("*.html"))
+    visits = visit_pages(browser, [p.as_uri() for p in pages])
+    assert_clean(visits)
+    dataset_pages = [v for v in visits if not v.url.endswith(("index.html", "changes.html"))]
+    assert all(v.charts >= 6 for v in dataset_pages)
+
+
+def test_hostile_text_never_runs(browser, tmp_path):
+    import sitebuild
+
+    hostile = "<img src=x onerror=alert(1)>"
+    rows = [f'"{hostile}",{i},{i * 0.5}' for i in range(8)]
+    rows += [f"\"</script><script>alert(2)</script>\",{i},{i}" for i in range(8)]
+    rows += [f"javascript:alert(4),{i},{i * 2}" for i in range(8)]
+    notes = "# Notes\n\n<script>alert(5)</script>\n\n[click](javascript:alert(6)) <img src=x onerror=alert(7)>\n"
+    root = write_project(
+        tmp_path / "p",
+        """
+        [site]
+        title = "{{ 7*7 }} {% if 1 %}x{% endif %}"
+        [[datasets]]
+        name = "<b onmouseover=alert(8)>bold</b>"
+        file = "data/d.csv"
+        group = "g\\"><svg onload=alert(9)>"
+        measures = ["v.a[0]", "w 'quoted'"]
+        notes = "notes.md"
+        """,
+        {
+            "data/d.csv": "\"g\"\"><svg onload=alert(9)>\",v.a[0],w 'quoted'\n" + "\n".join(rows) + "\n",
+            "notes.md": notes,
+        },
+    )
+    out = tmp_path / "site"
+    sitebuild.build(root, out=out)
+    visits = visit_pages(browser, [p.as_uri() for p in sorted(out.glob("*.html"))])
+    assert_clean(visits)
+
+
+def test_zipped_site_opens_offline_after_unzipping_elsewhere(browser, example_site, tmp_path):
+    archive = tmp_path / "site.zip"
+    with zipfile.ZipFile(archive, "w", zipfile.ZIP_DEFLATED) as z:
+        for path in sorted(example_site.rglob("*")):
+            if path.is_file():
+                z.write(path, path.relative_to(example_site).as_posix())
+    unpacked = tmp_path / "elsewhere" / "unzipped"
+    shutil.unpack_archive(archive, unpacked)
+    visits = visit_pages(browser, [p.as_uri() for p in sorted(Path(unpacked).glob("*.html"))])
+    assert_clean(visits)

@@ -1,0 +1,127 @@
+"""Reading data files: delimiters, decimal commas, encodings, missing tokens, exact labels."""
+
+from __future__ import annotations
+
+import numpy as np
+import pytest
+
+from conftest import write_project
+from sitebuild.errors import SitebuildError
+from sitebuild.ingest import read_table, sniff_delimiter
+from sitebuild.manifest import load_manifest
+
+MANIFEST = """
+[[datasets]]
+name = "D"
+file = "{file}"
+group = "g"
+measures = ["v", "w"]
+"""
+
+
+def table_for(tmp_path, name: str, content: str | bytes):
+    root = write_project(tmp_path / "p", MANIFEST.format(file=f"data/{name}"), {f"data/{name}": content})
+    return read_table(load_manifest(root).datasets[0])
+
+
+@pytest.mark.parametrize("delimiter", [",", ";", "\t", "|"])
+def test_delimiter_is_detected(tmp_path, delimiter):
+    text = delimiter.join(["g", "v", "w"]) + "\n" + "\n".join(
+        delimiter.join([g, str(i), str(i * 2)]) for i, g in enumerate("AABB")
+    )
+    table = table_for(tmp_path, "d.txt", text + "\n")
+    assert table.report.delimiter == delimiter
+    assert table.groups == ("A", "B")
+    np.testing.assert_array_equal(table.values("v"), [0, 1, 2, 3])
+
+
+def test_semicolon_file_with_decimal_commas(tmp_path):
+    table = table_for(tmp_path, "d.csv", "g;v;w\nA;1,5;2\nA;2,25;3\nB;-0,5;4\n")
+    np.testing.assert_allclose(table.values("v"), [1.5, 2.25, -0.5])
+
+
+def test_missing_tokens_count_as_missing_not_unparsed(tmp_path):
+    rows = ["A,NA,1", "A,,2", "A,n/a,3", "A,N/A,4", "B,null,5", "B,-,6", "B,NaN,7", "B,8,8"]
+    table = table_for(tmp_path, "d.csv", "g,v,w\n" + "\n".join(rows) + "\n")
+    assert table.report.missing["v"] == 7
+    assert "v" not in table.report.unparsed
+    # A missing v never drops the row for w.
+    assert np.isnan(table.values("w")).sum() == 0
+
+
+def test_unparsable_values_are_counted_with_three_examples(tmp_path):
+    rows = ["A,1,x1", "A,2,x2", "B,3,x3", "B,4,x4", "B,5,6"]
+    table = table_for(tmp_path, "d.csv", "g,v,w\n" + "\n".join(rows) + "\n")
+    problem = table.report.unparsed["w"]
+    assert problem.count == 4
+    assert problem.examples == ("x1", "x2", "x3")
+    assert np.isnan(table.values("w")).sum() == 4
+
+
+def test_rows_without_group_are_dropped_and_counted(tmp_path):
+    table = table_for(tmp_path, "d.csv", "g,v,w\nA,1,1\n,2,2\nNA,3,3\nB,4,4\n")
+    assert table.report.rows_read == 4
+    assert table.report.rows_used == 2
+    assert table.report.drop_reasons == {"missing group label": 2}
+
+
+def test_group_codes_keep_leading_zeros(tmp_path):
+    table = table_for(tmp_path, "d.csv", "g,v,w\n01,1,1\n02,2,2\n10,3,3\n01,4,4\n")
+    assert table.groups == ("01", "02", "10")
+
+
+def test_groups_in_natural_order(tmp_path):
+    table = table_for(tmp_path, "d.csv", "g,v,w\nLine 10,1,1\nLine 2,2,2\nLine 1,3,3\n")
+    assert table.groups == ("Line 1", "Line 2", "Line 10")
+
+
+def test_utf8_bom_is_removed(tmp_path):
+    table = table_for(tmp_path, "d.csv", "\ufeffg,v,w\nÄ,1,1\n".encode())
+    assert table.groups == ("Ä",)
+    assert table.report.encoding == "utf-8-sig"
+
+
+def test_latin1_fallback_is_reported(tmp_path):
+    table = table_for(tmp_path, "d.csv", "g,v,w\nMünchen,1,1\nKöln,2,2\n".encode("latin-1"))
+    assert set(table.groups) == {"München", "Köln"}
+    assert table.report.encoding == "latin-1"
+    assert any("Latin-1" in w for w in table.report.warnings)
+
+
+def test_missing_column_lists_the_columns(tmp_path):
+    with pytest.raises(SitebuildError) as caught:
+        table_for(tmp_path, "d.csv", "g,v,z\nA,1,1\n")
+    message = str(caught.value)
+    assert "'w'" in message and "'g', 'v', 'z'" in message and "data/d.csv" in message
+
+
+def test_parquet_and_json_lines(tmp_path):
+    import pandas as pd
+
+    frame = pd.DataFrame({"g": ["07", "07", "08"], "v": [1.0, 2.0, 3.0], "w": [1, 2, None]})
+    root = write_project(tmp_path / "p", MANIFEST.format(file="data/d.parquet"), {})
+    (root / "data").mkdir()
+    frame.to_parquet(root / "data" / "d.parquet")
+    table = read_table(load_manifest(root).datasets[0])
+    assert table.groups == ("07", "08")
+    assert table.report.missing["w"] == 1
+
+    lines = '{"g": "a", "v": 1, "w": 2}\n{"g": "b", "v": 3.5, "w": null}\n'
+    table = table_for(tmp_path / "j", "d.jsonl", lines)
+    assert table.groups == ("a", "b")
+    np.testing.assert_allclose(table.values("v"), [1, 3.5])
+
+
+def test_binary_file_with_csv_name(tmp_path):
+    with pytest.raises(SitebuildError, match="binary file"):
+        table_for(tmp_path, "d.csv", b"PK\x03\x04\x00\x00binary")
+
+
+def test_empty_file(tmp_path):
+    with pytest.raises(SitebuildError, match="empty"):
+        table_for(tmp_path, "d.csv", "")
+
+
+def test_sniffer_prefers_consistent_split():
+    assert sniff_delimiter("a;b;c\n1,5;2;3\n4;5,5;6\n", ".csv") == ";"
+    assert sniff_delimiter("a,b\n1,2\n", ".csv") == ","
