@@ -232,25 +232,42 @@ def _to_numbers(raw, name: str, decimal_comma: bool) -> tuple[np.ndarray, Column
     return values, ColumnProblem(count=count, examples=examples)
 
 
-def _group_labels(raw) -> np.ndarray:
-    """Return group labels as an object array of str (None where missing), kept as written."""
+def _label_text(uniques) -> list[str | None]:
+    """Return each distinct raw group value as its label text (None where it means missing)."""
     import pandas as pd
 
-    if raw.dtype.kind == "f":
+    if uniques.dtype.kind == "f":
         # A numeric group code stored as float: 1.0 -> "1", keep others as written.
-        out = np.array(
-            [
-                None if pd.isna(v) else (str(int(v)) if float(v).is_integer() else repr(v))
-                for v in raw
-            ],
-            dtype=object,
-        )
-        return out
-    text = raw.astype("string")
-    missing = text.isna() | text.str.strip().isin(MISSING_TOKENS)
-    out = text.to_numpy(dtype=object, na_value=None)
-    out[missing.to_numpy()] = None
-    return out
+        return [str(int(v)) if float(v).is_integer() else repr(float(v)) for v in uniques]
+    text = pd.Series(uniques).astype("string")
+    missing = (text.isna() | text.str.strip().isin(MISSING_TOKENS)).to_numpy()
+    return [None if gone else str(t) for t, gone in zip(text.tolist(), missing, strict=True)]
+
+
+def group_codes(raw) -> tuple[np.ndarray, tuple[str, ...]]:
+    """Return (int32 code per row, -1 where the group is missing; labels in display order).
+
+    Labels are the exact text as written; display order is :func:`natural_key`, ties kept in
+    order of first appearance. The work per row is one hash factorisation; everything else
+    touches only the distinct values.
+    """
+    import pandas as pd
+
+    raw_codes, uniques = pd.factorize(raw, sort=False, use_na_sentinel=True)
+    texts = _label_text(uniques)
+    # Distinct raw values can share a label (1 and "1" in JSON Lines): merge them.
+    first: dict[str, int] = {}
+    label_of = np.full(len(texts) + 1, -1, dtype=np.int64)  # last slot: raw NaN sentinel
+    for i, label in enumerate(texts):
+        if label is not None:
+            label_of[i] = first.setdefault(label, len(first))
+    labels = list(first)
+    order = sorted(range(len(labels)), key=lambda i: natural_key(labels[i]))
+    rank = np.empty(len(labels) + 1, dtype=np.int32)
+    rank[order] = np.arange(len(labels), dtype=np.int32)
+    rank[-1] = -1
+    codes = rank[label_of[raw_codes]]  # -1 indexes the sentinel slots
+    return codes.astype(np.int32, copy=False), tuple(labels[i] for i in order)
 
 
 def read_frame(spec: DatasetSpec):
@@ -349,11 +366,9 @@ def read_table(spec: DatasetSpec) -> Table:
     """Return the dataset as a :class:`Table`, with an :class:`IngestReport` of what happened."""
     frame, encoding, delimiter, warnings = read_frame(spec)
     rows_read = int(len(frame))
-    labels = _group_labels(frame[spec.group])
-    has_group = (
-        np.array([v is not None for v in labels], dtype=bool) if rows_read else np.zeros(0, bool)
-    )
-    import pandas as pd
+    all_codes, groups = group_codes(frame[spec.group])
+    has_group = all_codes >= 0
+    every_row = bool(has_group.all())
 
     decimal_comma = delimiter == ";"
     columns: dict[str, np.ndarray] = {}
@@ -363,14 +378,8 @@ def read_table(spec: DatasetSpec) -> Table:
         values, problem = _to_numbers(frame[name], name, decimal_comma)
         if problem:
             unparsed[name] = problem
-        columns[name] = values[has_group]
-    kept_labels = labels[has_group]
-    codes_raw, uniques = pd.factorize(pd.Series(kept_labels, dtype=object), sort=False)
-    order = sorted(range(len(uniques)), key=lambda i: natural_key(str(uniques[i])))
-    remap = np.empty(len(uniques), dtype=np.int32)
-    remap[order] = np.arange(len(uniques), dtype=np.int32)
-    codes = remap[codes_raw] if len(uniques) else np.zeros(0, dtype=np.int32)
-    groups = tuple(str(uniques[i]) for i in order)
+        columns[name] = values if every_row else values[has_group]
+    codes = all_codes if every_row else all_codes[has_group]
     for name, values in columns.items():
         missing[name] = int(np.isnan(values).sum())
     dropped = rows_read - int(has_group.sum())

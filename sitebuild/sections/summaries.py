@@ -29,13 +29,22 @@ def _row(group: str | None, measure: str, summary: Summary) -> dict:
 
 
 def _sorted_by_group(values: np.ndarray, codes: np.ndarray, n_groups: int):
+    """Return (values sorted within each group, group bounds, missing per group, all sorted).
+
+    One stable integer partition by group, one sort per group's slice, then a stable merge of
+    the sorted runs for the all-groups row: cheaper than a lexsort plus a second full sort.
+    """
     keep = ~np.isnan(values)
     kept, kept_codes = values[keep], codes[keep]
-    order = np.lexsort((kept, kept_codes))
+    order = np.argsort(kept_codes, kind="stable")
     ordered = kept[order]
     bounds = np.searchsorted(kept_codes[order], np.arange(n_groups + 1))
+    for index in range(n_groups):
+        ordered[bounds[index] : bounds[index + 1]].sort()
+    # Timsort ("stable" for floats) merges already-sorted runs in O(n log groups).
+    everything = np.sort(ordered, kind="stable")
     missing = np.bincount(codes[~keep], minlength=n_groups)
-    return ordered, bounds, missing
+    return ordered, bounds, missing, everything
 
 
 def _counts(sorted_values: np.ndarray, edges: np.ndarray) -> list[int]:
@@ -53,7 +62,7 @@ def compute(table: Table, settings: SiteSettings, rng, partial: dict) -> dict:
     n_groups = len(table.groups)
     for measure in table.spec.measures:
         values = table.values(measure)
-        ordered, bounds, missing = _sorted_by_group(values, table.codes, n_groups)
+        ordered, bounds, missing, everything = _sorted_by_group(values, table.codes, n_groups)
         edges = histogram_edges(ordered)
         per_group = []
         for index, group in enumerate(table.groups):
@@ -79,7 +88,6 @@ def compute(table: Table, settings: SiteSettings, rng, partial: dict) -> dict:
                     "outliers_total": summary.outliers,
                 }
             )
-        everything = np.sort(ordered)
         overall = describe_sorted(everything, level, missing=int(missing.sum()))
         summaries.append(_row(None, measure, overall))
         distributions.append(
