@@ -6,8 +6,12 @@ report objects returned here.
 
 from __future__ import annotations
 
+import dataclasses
+import hashlib
 import importlib
 import importlib.util
+import json
+import sys
 import time
 import zlib
 from contextlib import contextmanager
@@ -15,6 +19,8 @@ from dataclasses import dataclass, field
 from pathlib import Path
 
 from . import __version__
+from .cache import Cache, cache_folder, canonical, code_fingerprint, dataset_key, vl_convert_version
+from .errors import SitebuildError
 from .manifest import Manifest, load_manifest
 from .sections import SECTION_NAMES
 
@@ -38,7 +44,12 @@ class DatasetReport:
 
 @dataclass(frozen=True)
 class BuildReport:
-    """The outcome of a build: where the site is, what it holds, how long each stage took."""
+    """The outcome of a build: where the site is, what it holds, how long each stage took.
+
+    ``written`` is False when the site on disk already held exactly these bytes (nothing
+    changed, nothing was written). ``changes`` holds a few sentences on what moved since the
+    previous build.
+    """
 
     out: Path
     index: Path
@@ -50,6 +61,32 @@ class BuildReport:
     stages: dict[str, float]
     notices: tuple[str, ...] = ()
     extra: dict = field(default_factory=dict)
+    written: bool = True
+    changes: tuple[str, ...] = ()
+    numbers_changed: bool = True
+    assets: int = 0
+    asset_bytes: int = 0
+    largest_page: str | None = None
+    largest_page_bytes: int = 0
+    zip_path: Path | None = None
+    zip_bytes: int | None = None
+    single_file_path: Path | None = None
+    single_file_bytes: int | None = None
+
+    @property
+    def reused(self) -> tuple[str, ...]:
+        """Names of the datasets whose results came from the cache."""
+        return tuple(d.name for d in self.datasets if d.reused)
+
+    def to_json(self) -> dict:
+        """Return the report as JSON-ready data (paths as text)."""
+        data = dataclasses.asdict(self)
+        for key, value in list(data.items()):
+            if isinstance(value, Path):
+                data[key] = str(value)
+        data["extra"] = {}
+        data["reused"] = list(self.reused)
+        return data
 
 
 @dataclass(frozen=True)
@@ -109,7 +146,7 @@ def _dataset_report(table, reused: bool = False) -> DatasetReport:
     )
 
 
-def analyse(table, manifest: Manifest, timer: Timer) -> dict:
+def analyse(table, manifest: Manifest, timer: Timer, say=None) -> dict:
     """Return one dataset's results dict: source, groups and every section's keys."""
     spec = table.spec
     ds = {
@@ -124,9 +161,12 @@ def analyse(table, manifest: Manifest, timer: Timer) -> dict:
     }
     for index, module in enumerate(section_modules()):
         name = module.__name__.rsplit(".", 1)[-1]
+        began = time.perf_counter()
         with timer.stage(name):
             rng = dataset_rng(manifest.site.seed, spec.name, index)
             ds.update(module.compute(table, manifest.site, rng, ds))
+        if say:
+            say(f"{spec.name}: {name} ({time.perf_counter() - began:.2f} s)")
     return ds
 
 
@@ -162,38 +202,266 @@ def check(project: str | Path, out: str | Path | None = None) -> CheckReport:
     return CheckReport(manifest=manifest.path, out=target, datasets=reports)
 
 
-def build(project: str | Path, out: str | Path | None = None, **options) -> BuildReport:
-    """Build the site for ``project`` into ``out`` (default: the project's output folder)."""
-    from .ingest import read_table
-    from .results import clean
-    from .site import publish, render
+def _report_from_results(ds: dict, reused: bool) -> DatasetReport:
+    """Return a dataset's report from its (cached) results, without reading the file."""
+    source = ds["source"]
+    return DatasetReport(
+        name=ds["name"],
+        file=source["file"],
+        rows_read=source["rows_read"],
+        rows_used=source["rows_used"],
+        rows_dropped=source["rows_dropped"],
+        drop_reasons=dict(source["drop_reasons"]),
+        unparsed={k: dict(v) for k, v in source.get("unparsed", {}).items()},
+        groups=len(ds["groups"]),
+        measures=len(ds["measures"]),
+        warnings=tuple(source.get("warnings", ())),
+        reused=reused,
+    )
+
+
+def file_digest(path: Path) -> str:
+    """Return the hex SHA-256 of a file's bytes (the same digest results.json records)."""
+    digest = hashlib.sha256()
+    with open(path, "rb") as handle:
+        for chunk in iter(lambda: handle.read(1 << 20), b""):
+            digest.update(chunk)
+    return digest.hexdigest()
+
+
+def previous_results(target: Path) -> tuple[dict | None, str | None]:
+    """Return (the previous site's results.json, a notice) — None when there is none to use."""
+    from .site.render import MARKER
+
+    path = target / "results.json"
+    if not (target / MARKER).is_file() or not path.is_file():
+        return None, None
+    try:
+        data = json.loads(path.read_text(encoding="utf-8"))
+        if not isinstance(data, dict) or not isinstance(data.get("datasets"), list):
+            raise ValueError("not a results tree")
+    except (OSError, ValueError):
+        return None, (
+            f"{path} could not be read, so this build is compared with nothing and its history "
+            "starts again"
+        )
+    return data, None
+
+
+def render_key(results: dict, manifest: Manifest) -> str:
+    """Return a SHA-256 of everything a render reads: equal keys give equal site bytes."""
+    from .site.render import build_time, layout_files
+
+    digest = hashlib.sha256()
+    parts = {
+        "results": hashlib.sha256(canonical(results).encode("utf-8")).hexdigest(),
+        "site": dataclasses.asdict(manifest.site),
+        "version": __version__,
+        "code": code_fingerprint(),
+        "vl_convert": vl_convert_version(),
+        "built_at": build_time(),
+    }
+    digest.update(canonical(parts).encode("utf-8"))
+    for spec in manifest.datasets:
+        if spec.notes_path is not None:
+            digest.update(b"notes\0" + file_digest(spec.notes_path).encode("ascii"))
+    for path in layout_files(manifest):
+        digest.update(str(path).encode("utf-8") + b"\0" + file_digest(path).encode("ascii"))
+    return digest.hexdigest()
+
+
+def _sizes(sizes: dict[str, int]) -> dict:
+    pages = {name: n for name, n in sizes.items() if name.endswith(".html")}
+    assets = {name: n for name, n in sizes.items() if name.startswith("assets/")}
+    largest = max(sorted(pages), key=lambda name: pages[name]) if pages else None
+    return {
+        "pages": len(pages),
+        "files": len(sizes),
+        "total_bytes": sum(sizes.values()),
+        "assets": len(assets),
+        "asset_bytes": sum(assets.values()),
+        "largest_page": largest,
+        "largest_page_bytes": pages[largest] if largest else 0,
+    }
+
+
+def _progress(progress, quiet: bool, started: float):
+    """Return a function that reports one progress line, or does nothing."""
+    if quiet or not progress:
+        return None
+    if progress is True:
+
+        def say(line: str) -> None:
+            print(f"[{time.perf_counter() - started:6.1f} s] {line}", file=sys.stderr, flush=True)
+
+        return say
+
+    def forward(line: str) -> None:
+        progress(f"[{time.perf_counter() - started:6.1f} s] {line}")
+
+    return forward
+
+
+def build(
+    project: str | Path,
+    out: str | Path | None = None,
+    *,
+    fresh: bool = False,
+    zip: str | Path | None = None,
+    single_file: str | Path | None = None,
+    progress=None,
+    quiet: bool = False,
+) -> BuildReport:
+    """Build the site for ``project`` into ``out`` (default: the project's output folder).
+
+    ``fresh`` ignores the cache; ``zip`` and ``single_file`` also write the site as a zip or
+    as one HTML file at those paths; ``progress`` is True (lines to stderr) or a function
+    taking one line of text; ``quiet`` silences progress.
+    """
+    from .changes import compare, core, extend_history, results_id
+    from .site import publish
+    from .site.render import build_time
 
     started = time.perf_counter()
+    say = _progress(progress, quiet, started)
     timer = Timer()
     manifest = load_manifest(project)
     target = resolve_out(manifest, out)
     publish.check_target(target, manifest)
-    datasets, reports = [], []
-    for spec in manifest.datasets:
-        with timer.stage("read"):
-            table = read_table(spec)
-        datasets.append(clean(analyse(table, manifest, timer)))
-        reports.append(_dataset_report(table))
-    results = {"tool_version": __version__, "site": site_block(manifest), "datasets": datasets}
-    with timer.stage("render"):
-        files = render.render_site(results, manifest)
-    with timer.stage("publish"):
-        published = publish.publish(files, target, manifest)
-    elapsed = time.perf_counter() - started
+    zip_path = publish.check_extra_path(Path(zip), target, manifest, "zip") if zip else None
+    single_path = (
+        publish.check_extra_path(Path(single_file), target, manifest, "single file")
+        if single_file
+        else None
+    )
+    if zip_path is not None and zip_path == single_path:
+        raise SitebuildError(
+            f"{zip_path}: --zip and --single-file name the same file; give each its own."
+        )
+    cache = Cache(cache_folder(manifest.root), enabled=not fresh)
+    try:
+        target.parent.mkdir(parents=True, exist_ok=True)
+    except OSError as exc:
+        raise SitebuildError(
+            f"{target.parent}: cannot create the folder ({exc.strerror}); choose another --out."
+        ) from None
+    notices: list[str] = []
+    with publish.Lock(target):
+        datasets, reports = [], []
+        for spec in manifest.datasets:
+            with timer.stage("cache"):
+                sha = file_digest(spec.path)
+                key = dataset_key(sha, spec, manifest.site)
+                ds = cache.load("results", key)
+            if ds is not None and ds.get("source", {}).get("sha256") == sha:
+                datasets.append(ds)
+                reports.append(_report_from_results(ds, reused=True))
+                if say:
+                    say(f"{spec.name}: unchanged, results reused")
+                continue
+            from .ingest import read_table
+            from .results import clean
+
+            if say:
+                say(f"{spec.name}: reading {spec.file}")
+            with timer.stage("read"):
+                table = read_table(spec)
+            if say:
+                say(f"{spec.name}: {table.report.rows_used:,} rows ready")
+            ds = clean(analyse(table, manifest, timer, say))
+            # Through JSON and back, so fresh and cached results are the very same data.
+            ds = json.loads(canonical(ds))
+            cache.store("results", key, ds)
+            datasets.append(ds)
+            reports.append(_dataset_report(table))
+        computed = {"tool_version": __version__, "site": site_block(manifest), "datasets": datasets}
+        previous, notice = previous_results(target)
+        if notice:
+            notices.append(notice)
+        numbers_changed = previous is None or results_id(previous) != results_id(computed)
+        if not numbers_changed and "changes" in previous and "history" in previous:
+            # Nothing computed moved: the site keeps saying what moved at the last real change.
+            changes, history = previous["changes"], previous["history"]
+        else:
+            changes = compare(previous and core(previous), computed)
+            history = extend_history(previous, computed, manifest.site.history, build_time())
+        results = {**computed, "changes": changes, "history": history}
+        if numbers_changed:
+            report_changes = tuple(changes["summary"])
+        else:
+            report_changes = ("No number changed since the last build.",)
+
+        with timer.stage("render"):
+            site_key = render_key(results, manifest)
+            record_key = hashlib.sha256(str(target).encode("utf-8")).hexdigest()
+            record = cache.load("sites", record_key)
+            files = None
+            unchanged = (
+                record is not None
+                and record.get("site_key") == site_key
+                and publish.on_disk(target) == record.get("files")
+            )
+            if not unchanged:
+                from .site import render
+
+                if say:
+                    say("rendering pages")
+                bundle = cache.chart_bundle(render.chart_bundle)
+                files = render.render_site(results, manifest, bundle=bundle)
+                unchanged = publish.same_as_disk(files, target)
+                sizes = {name: len(data) for name, data in files.items()}
+            else:
+                sizes = dict(record["sizes"])
+        with timer.stage("publish"):
+            if not unchanged:
+                if say:
+                    say(f"publishing to {target}")
+                published = publish.publish(files, target, manifest, lock=False)
+                notices += published.notices
+            if files is not None:
+                cache.store(
+                    "sites",
+                    record_key,
+                    {"site_key": site_key, "files": publish.digests(files), "sizes": sizes},
+                )
+        zip_bytes = single_bytes = None
+        if zip_path is not None or single_path is not None:
+            if files is None:
+                files = {name: (target / name).read_bytes() for name in sorted(record["files"])}
+            with timer.stage("zip"):
+                if zip_path is not None:
+                    data = publish.zip_bytes(files, publish.zip_folder_name(zip_path))
+                    publish.write_file(zip_path, data, "zip")
+                    zip_bytes = len(data)
+                if single_path is not None:
+                    from .site.single_file import render_single
+
+                    if say:
+                        say("writing the single file")
+                    data = render_single(results, manifest, files=files)
+                    publish.write_file(single_path, data, "single file")
+                    single_bytes = len(data)
+    notices += cache.notices
+    summary = _sizes(sizes)
     return BuildReport(
         out=target,
         index=target / "index.html",
         datasets=tuple(reports),
-        pages=sum(1 for name in files if name.endswith(".html")),
-        files=len(files),
-        total_bytes=sum(len(b) for b in files.values()),
-        elapsed=elapsed,
+        pages=summary["pages"],
+        files=summary["files"],
+        total_bytes=summary["total_bytes"],
+        elapsed=time.perf_counter() - started,
         stages=dict(timer.stages),
-        notices=tuple(published.notices),
-        extra={"options": options},
+        notices=tuple(notices),
+        written=not unchanged,
+        changes=report_changes,
+        numbers_changed=numbers_changed,
+        assets=summary["assets"],
+        asset_bytes=summary["asset_bytes"],
+        largest_page=summary["largest_page"],
+        largest_page_bytes=summary["largest_page_bytes"],
+        zip_path=zip_path,
+        zip_bytes=zip_bytes,
+        single_file_path=single_path,
+        single_file_bytes=single_bytes,
     )

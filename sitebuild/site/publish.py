@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+import errno
+import hashlib
 import os
 import shutil
 import socket
@@ -11,6 +13,7 @@ from dataclasses import dataclass, field
 from pathlib import Path
 
 from ..errors import BuildLocked, SitebuildError
+from ..cache import CACHE_DIR
 from ..manifest import Manifest
 from .render import MARKER
 
@@ -48,6 +51,12 @@ def check_target(out: Path, manifest: Manifest) -> None:
                 f"{out}: the output folder holds the input file {item.name}; choose a folder "
                 "that holds no data or notes."
             )
+    cache = (root / CACHE_DIR).resolve()
+    if out == cache or _is_relative_to(out, cache) or _is_relative_to(cache, out):
+        raise SitebuildError(
+            f"{out}: the output folder would overlap the build cache {cache}; choose another "
+            "folder with --out."
+        )
     if out.exists() and not out.is_dir():
         raise SitebuildError(f"{out}: exists and is a file, not a folder; choose another --out.")
     if out.is_dir() and any(out.iterdir()) and not (out / MARKER).is_file():
@@ -107,6 +116,22 @@ class Lock:
             self.held = False
 
 
+# Renaming a folder fails with these where the target sits on another device or a network
+# share that cannot swap folders; the site is then copied into place file by file instead.
+SWAP_ERRORS = frozenset(
+    {
+        errno.EXDEV,
+        errno.EPERM,
+        errno.EACCES,
+        errno.EBUSY,
+        errno.ENOTSUP,
+        errno.EINVAL,
+        errno.ENOTEMPTY,
+    }
+)
+ZIP_TIME = (1980, 1, 1, 0, 0, 0)  # the earliest time a zip entry can hold: same bytes every build
+
+
 def write_tree(files: dict[str, bytes], folder: Path) -> None:
     """Write ``files`` (relative path → bytes) under ``folder``, creating sub-folders."""
     for name, data in sorted(files.items()):
@@ -116,9 +141,68 @@ def write_tree(files: dict[str, bytes], folder: Path) -> None:
             handle.write(data)
 
 
-def publish(files: dict[str, bytes], out: Path, manifest: Manifest) -> Published:
+def on_disk(out: Path) -> dict[str, str]:
+    """Return relative path → SHA-256 of every file under ``out`` (empty when absent)."""
+    found = {}
+    if not out.is_dir():
+        return found
+    for path in sorted(out.rglob("*")):
+        if path.is_file():
+            found[path.relative_to(out).as_posix()] = hashlib.sha256(path.read_bytes()).hexdigest()
+    return found
+
+
+def digests(files: dict[str, bytes]) -> dict[str, str]:
+    """Return relative path → SHA-256 of the rendered files."""
+    return {name: hashlib.sha256(data).hexdigest() for name, data in sorted(files.items())}
+
+
+def same_as_disk(files: dict[str, bytes], out: Path) -> bool:
+    """Return True when ``out`` holds exactly these files with exactly these bytes."""
+    if not out.is_dir():
+        return False
+    for name, data in files.items():
+        try:
+            if (out / name).read_bytes() != data:
+                return False
+        except OSError:
+            return False
+    present = {p.relative_to(out).as_posix() for p in out.rglob("*") if p.is_file()}
+    return present == set(files)
+
+
+def _copy_into_place(files: dict[str, bytes], staging: Path, out: Path) -> None:
+    """Fallback when folders cannot be swapped: every new file is first written beside its old
+    self, the old site stays whole meanwhile, then each is renamed over the old one."""
+    out.mkdir(parents=True, exist_ok=True)
+    tag = f".new-{os.getpid()}"
+    written = []
+    try:
+        for name in sorted(files):
+            target = out / name
+            target.parent.mkdir(parents=True, exist_ok=True)
+            temp = target.with_name(target.name + tag)
+            shutil.copyfile(staging / name, temp)
+            written.append(temp)
+    except BaseException:
+        for temp in written:
+            temp.unlink(missing_ok=True)
+        raise
+    for name in sorted(files):
+        target = out / name
+        os.replace(target.with_name(target.name + tag), target)
+    keep = set(files)
+    for path in sorted(out.rglob("*"), reverse=True):
+        relative = path.relative_to(out).as_posix()
+        if path.is_file() and relative not in keep:
+            path.unlink()
+        elif path.is_dir() and not any(path.iterdir()):
+            path.rmdir()
+
+
+def publish(files: dict[str, bytes], out: Path, manifest: Manifest, lock: bool = True) -> Published:
     """Write the site into a new folder beside ``out``, then swap it in; the old site stays
-    whole until the new one is complete."""
+    whole until the new one is complete. ``lock=False`` when the caller holds the lock."""
     check_target(out, manifest)
     notices: list[str] = []
     try:
@@ -127,7 +211,7 @@ def publish(files: dict[str, bytes], out: Path, manifest: Manifest) -> Published
         raise SitebuildError(
             f"{out.parent}: cannot create the folder ({exc.strerror}); choose another --out."
         ) from None
-    with Lock(out):
+    with Lock(out) if lock else _no_lock():
         try:
             staging = Path(tempfile.mkdtemp(prefix=f".{out.name}.new-", dir=out.parent))
             # mkdtemp makes a private folder; readers of a shared site need the usual rights.
@@ -148,16 +232,127 @@ def publish(files: dict[str, bytes], out: Path, manifest: Manifest) -> Published
                     f"{out}: writing the new site failed ({exc.strerror}); the previous site is "
                     "unchanged — free space or fix permissions and build again."
                 ) from None
-            if out.exists():
-                old = out.parent / f".{out.name}.old-{os.getpid()}"
-                os.replace(out, old)
-            os.replace(staging, out)
+            try:
+                if out.exists():
+                    aside = out.parent / f".{out.name}.old-{os.getpid()}"
+                    os.replace(out, aside)
+                    old = aside
+                os.replace(staging, out)
+            except OSError as exc:
+                if exc.errno not in SWAP_ERRORS:
+                    raise
+                if old is not None and not out.exists():
+                    os.replace(old, out)
+                    old = None
+                try:
+                    _copy_into_place(files, staging, out)
+                except OSError as copy_exc:
+                    raise SitebuildError(
+                        f"{out}: copying the new site into place failed ({copy_exc.strerror}); "
+                        "the previous site is unchanged — fix the folder and build again."
+                    ) from None
+                notices.append(
+                    f"the folder could not be swapped in one step ({os.strerror(exc.errno)}), so "
+                    "the new files were copied in beside the old ones and then renamed over them "
+                    "one by one; a reader at that moment may have seen old and new pages mixed"
+                )
         except BaseException:
             if old is not None and not out.exists():
                 os.replace(old, out)
                 old = None
             shutil.rmtree(staging, ignore_errors=True)
             raise
+        shutil.rmtree(staging, ignore_errors=True)
         if old is not None:
             shutil.rmtree(old, ignore_errors=True)
     return Published(out=out, notices=notices)
+
+
+class _no_lock:
+    def __enter__(self):
+        return self
+
+    def __exit__(self, *exc):
+        return False
+
+
+def check_extra_path(path: Path, out: Path, manifest: Manifest, what: str) -> Path:
+    """Refuse a --zip or --single-file path inside the site, the cache, or on an input file."""
+    path = path.expanduser().resolve()
+    out = out.resolve()
+    flag = "--zip" if what == "zip" else "--single-file"
+    if path == out or _is_relative_to(path, out):
+        raise SitebuildError(
+            f"{path}: the {what} would sit inside the site folder {out}; give {flag} a path "
+            "outside it."
+        )
+    if _is_relative_to(path, (manifest.root / CACHE_DIR).resolve()):
+        raise SitebuildError(
+            f"{path}: the {what} would sit inside the build cache; give {flag} another path."
+        )
+    inputs = [manifest.path] + [d.path for d in manifest.datasets]
+    inputs += [d.notes_path for d in manifest.datasets if d.notes_path]
+    if any(path == item.resolve() for item in inputs):
+        raise SitebuildError(
+            f"{path}: that is an input of the project; give {flag} a new file name."
+        )
+    if path.is_dir():
+        raise SitebuildError(
+            f"{path}: is a folder; give {flag} a file name such as site.{what == 'zip' and 'zip' or 'html'}."
+        )
+    return path
+
+
+def write_file(path: Path, data: bytes, what: str) -> bool:
+    """Write ``data`` to ``path`` atomically; return False when it already held these bytes."""
+    try:
+        if path.read_bytes() == data:
+            return False
+    except OSError:
+        pass
+    try:
+        path.parent.mkdir(parents=True, exist_ok=True)
+        fd, temp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".tmp", dir=path.parent)
+    except OSError as exc:
+        raise SitebuildError(
+            f"{path.parent}: cannot write the {what} here ({exc.strerror}); choose another path."
+        ) from None
+    try:
+        with os.fdopen(fd, "wb") as handle:
+            handle.write(data)
+        umask = os.umask(0)
+        os.umask(umask)
+        os.chmod(temp, 0o666 & ~umask)
+        os.replace(temp, path)
+    except OSError as exc:
+        Path(temp).unlink(missing_ok=True)
+        raise SitebuildError(
+            f"{path}: writing the {what} failed ({exc.strerror}); free space or choose another path."
+        ) from None
+    except BaseException:
+        Path(temp).unlink(missing_ok=True)
+        raise
+    return True
+
+
+def zip_bytes(files: dict[str, bytes], folder: str) -> bytes:
+    """Return a zip of the site under ``folder/``: sorted entries, fixed times and permissions,
+    so the same site always gives the same bytes."""
+    import io
+    import zipfile
+
+    buffer = io.BytesIO()
+    with zipfile.ZipFile(buffer, "w") as archive:
+        for name in sorted(files):
+            info = zipfile.ZipInfo(f"{folder}/{name}", date_time=ZIP_TIME)
+            info.compress_type = zipfile.ZIP_DEFLATED
+            info.external_attr = 0o644 << 16
+            info.create_system = 3  # Unix, so the permissions above are read as such
+            archive.writestr(info, files[name], compress_type=zipfile.ZIP_DEFLATED, compresslevel=6)
+    return buffer.getvalue()
+
+
+def zip_folder_name(path: Path) -> str:
+    """Return the folder the zip unpacks into: the zip's own name without '.zip'."""
+    stem = path.name[:-4] if path.name.lower().endswith(".zip") else path.name
+    return stem or "site"

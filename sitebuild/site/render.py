@@ -183,58 +183,116 @@ def page_parts(ds: dict, settings) -> tuple[dict, dict]:
     return charts, tables
 
 
-def render_site(
-    results: dict, manifest: Manifest, extra_pages: dict | None = None
-) -> dict[str, bytes]:
-    """Return every file of the site, path relative to the site root → bytes."""
-    env = environment(manifest.root / "layouts")
-    settings = manifest.site
-    files: dict[str, bytes] = {}
-    common = {
+def dataset_page(env, common: dict, ds: dict, spec) -> tuple[dict, dict]:
+    """Return (page context, CSV files) for one dataset; the context renders dataset.html."""
+    charts, tables = page_parts(ds, common["site"])
+    csv_files = {}
+    for key, table in list(tables.items()):
+        name = f"tables/{ds['slug']}-{table.id}.csv"
+        csv_files[name] = _csv(table)
+        tables[key] = dataclasses.replace(table, href=name)
+    notes_html = None
+    if spec.notes_path is not None:
+        notes_html = sanitise_notes(spec.notes_path.read_text(encoding="utf-8", errors="replace"))
+    context = {
+        **common,
+        "ds": ds,
+        "charts": charts,
+        "tables": tables,
+        "notes_html": notes_html,
+        "chart_specs": {cid: c.spec for cid, c in charts.items()},
+        "current": f"{ds['slug']}.html",
+    }
+    return context, csv_files
+
+
+def history_tables(history: list[dict]) -> list[dict]:
+    """Return, per dataset, the history as table rows: rows used and each group mean by build."""
+    names: list[str] = []
+    for entry in history:
+        for d in entry["datasets"]:
+            if d["name"] not in names:
+                names.append(d["name"])
+    builds = [entry["build"] for entry in history]
+    out = []
+    for name in names:
+        per_build = [next((d for d in e["datasets"] if d["name"] == name), None) for e in history]
+        rows = [("Rows used", [d["rows_used"] if d else None for d in per_build])]
+        labels: list[tuple[str, str]] = []
+        for d in per_build:
+            for m in d["means"] if d else []:
+                if (m["measure"], m["group"]) not in labels:
+                    labels.append((m["measure"], m["group"]))
+        for measure, group in labels:
+            values = []
+            for d in per_build:
+                found = [
+                    m["mean"]
+                    for m in (d["means"] if d else [])
+                    if (m["measure"], m["group"]) == (measure, group)
+                ]
+                values.append(found[0] if found else None)
+            rows.append((f"Mean {measure}, {group}", values))
+        out.append({"name": name, "builds": builds, "rows": rows})
+    return out
+
+
+def common_context(results: dict, manifest: Manifest) -> dict:
+    """Return what every page's layout needs besides its own content."""
+    return {
         "results": results,
-        "site": settings,
+        "site": manifest.site,
         "version": __version__,
         "built_at": build_time(),
         "nav": [(ds["name"], f"{ds['slug']}.html") for ds in results["datasets"]],
     }
+
+
+def render_site(
+    results: dict,
+    manifest: Manifest,
+    extra_pages: dict | None = None,
+    bundle: bytes | None = None,
+) -> dict[str, bytes]:
+    """Return every file of the site, path relative to the site root → bytes.
+
+    ``bundle`` is the chart script (Vega, Vega-Lite, vega-embed); made by vl-convert when
+    not given.
+    """
+    env = environment(manifest.root / "layouts")
+    files: dict[str, bytes] = {}
+    common = common_context(results, manifest)
     for ds, spec in zip(results["datasets"], manifest.datasets, strict=True):
-        charts, tables = page_parts(ds, settings)
-        for key, table in list(tables.items()):
-            name = f"tables/{ds['slug']}-{table.id}.csv"
-            files[name] = _csv(table)
-            tables[key] = dataclasses.replace(table, href=name)
-        notes_html = None
-        if spec.notes_path is not None:
-            notes_html = sanitise_notes(
-                spec.notes_path.read_text(encoding="utf-8", errors="replace")
-            )
-        page = env.get_template("dataset.html").render(
-            **common,
-            ds=ds,
-            charts=charts,
-            tables=tables,
-            notes_html=notes_html,
-            chart_specs={cid: c.spec for cid, c in charts.items()},
-            current=f"{ds['slug']}.html",
+        context, csv_files = dataset_page(env, common, ds, spec)
+        files.update(csv_files)
+        files[f"{ds['slug']}.html"] = (
+            env.get_template("dataset.html").render(**context).encode("utf-8")
         )
-        files[f"{ds['slug']}.html"] = page.encode("utf-8")
-    for name, (template, context) in (extra_pages or {}).items():
+    pages = dict(extra_pages or {})
+    changes = results.get("changes")
+    if changes is not None:
+        pages.setdefault(
+            "changes.html",
+            (
+                "changes.html",
+                {"changes": changes, "history": history_tables(results.get("history", []))},
+            ),
+        )
+    for name, (template, context) in pages.items():
         files[name] = (
             env.get_template(template)
             .render(**common, **context, current=name, chart_specs={})
             .encode("utf-8")
         )
+    summary = changes["summary"] if changes else None
     files["index.html"] = (
         env.get_template("index.html")
-        .render(**common, current="index.html", chart_specs={})
+        .render(**common, current="index.html", chart_specs={}, changes_summary=summary)
         .encode("utf-8")
     )
-    layouts = packaged_layouts()
     for asset in ("style.css", "site.js"):
-        override = manifest.root / "layouts" / asset
-        source = override if override.is_file() else layouts / asset
-        files[f"assets/{asset}"] = source.read_bytes()
-    files[ASSET_BUNDLE] = chart_bundle()
+        files[f"assets/{asset}"] = asset_bytes(manifest, asset)
+    files[ASSET_BUNDLE] = bundle if bundle is not None else chart_bundle()
     files["results.json"] = (dumps(results) + "\n").encode("utf-8")
     files["results.schema.json"] = (json.dumps(schema(), indent=1, sort_keys=True) + "\n").encode(
         "utf-8"
@@ -243,3 +301,19 @@ def render_site(
         f"This folder is a site written by sitebuild {__version__}. A rebuild replaces it whole.\n".encode()
     )
     return files
+
+
+def asset_bytes(manifest: Manifest, asset: str) -> bytes:
+    """Return a packaged asset (style.css, site.js), or the project's override of it."""
+    override = manifest.root / "layouts" / asset
+    source = override if override.is_file() else packaged_layouts() / asset
+    return source.read_bytes()
+
+
+def layout_files(manifest: Manifest) -> list[Path]:
+    """Return every layout file a render may read: packaged ones and the project's overrides."""
+    found = []
+    for folder in (packaged_layouts(), manifest.root / "layouts"):
+        if folder.is_dir():
+            found += sorted(p for p in folder.rglob("*") if p.is_file())
+    return found

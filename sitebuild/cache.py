@@ -1,0 +1,170 @@
+"""A content-addressed store inside the project: dataset results, the chart script, site records.
+
+Each entry is a JSON file named by its key and holding a checksum of its own payload, so a
+truncated, edited or foreign file is detected and recomputed, never trusted. Writes go to a
+temporary file first and are renamed into place, so two builds never see half an entry.
+"""
+
+from __future__ import annotations
+
+import dataclasses
+import hashlib
+import json
+import os
+import tempfile
+from functools import lru_cache
+from pathlib import Path
+
+from . import __version__
+
+CACHE_DIR = ".sitebuild_cache"
+FORMAT = 1
+# Site settings that only change how pages look, not any number: excluded from dataset keys.
+PRESENTATION_SETTINGS = frozenset({"title", "output", "history"})
+
+
+def cache_folder(project_root: Path) -> Path:
+    """Return the project's cache folder (it may not exist yet)."""
+    return project_root / CACHE_DIR
+
+
+@lru_cache(maxsize=1)
+def code_fingerprint() -> str:
+    """Return a SHA-256 over the sitebuild package's Python and schema files.
+
+    Any edit to the code changes the fingerprint, so results computed by older code are never
+    reused, even when the version number was not raised.
+    """
+    package = Path(__file__).resolve().parent
+    digest = hashlib.sha256()
+    for path in sorted(package.rglob("*")):
+        if path.suffix not in (".py", ".json") or "__pycache__" in path.parts:
+            continue
+        digest.update(path.relative_to(package).as_posix().encode("utf-8") + b"\0")
+        digest.update(hashlib.sha256(path.read_bytes()).digest())
+    return digest.hexdigest()
+
+
+def canonical(data) -> str:
+    """Return JSON text that is the same for equal data: sorted keys, no spaces, no NaN."""
+    return json.dumps(
+        data, sort_keys=True, allow_nan=False, ensure_ascii=False, separators=(",", ":")
+    )
+
+
+def results_settings(site) -> dict:
+    """Return the site settings that can change a dataset's numbers."""
+    settings = dataclasses.asdict(site)
+    return {k: v for k, v in sorted(settings.items()) if k not in PRESENTATION_SETTINGS}
+
+
+def dataset_key(file_sha256: str, spec, site) -> str:
+    """Return the cache key of one dataset's results: a SHA-256 of everything they depend on."""
+    material = {
+        "format": FORMAT,
+        "file_sha256": file_sha256,
+        "section": spec.section(),
+        "settings": results_settings(site),
+        "tool_version": __version__,
+        "code": code_fingerprint(),
+    }
+    return hashlib.sha256(canonical(material).encode("utf-8")).hexdigest()
+
+
+def _atomic_write(path: Path, data: bytes) -> None:
+    path.parent.mkdir(parents=True, exist_ok=True)
+    fd, temp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".tmp", dir=path.parent)
+    try:
+        with os.fdopen(fd, "wb") as handle:
+            handle.write(data)
+        os.replace(temp, path)
+    except BaseException:
+        Path(temp).unlink(missing_ok=True)
+        raise
+
+
+class Cache:
+    """The project's cache folder; ``enabled=False`` reads nothing (``--fresh``) but still writes."""
+
+    def __init__(self, root: Path, enabled: bool = True):
+        self.root = root
+        self.enabled = enabled
+        self.notices: list[str] = []
+
+    # -- dataset results ------------------------------------------------------------------
+    def _entry(self, kind: str, key: str) -> Path:
+        return self.root / kind / f"{key}.json"
+
+    def load(self, kind: str, key: str):
+        """Return the payload stored under ``key``, or None when absent, corrupt or foreign."""
+        if not self.enabled:
+            return None
+        path = self._entry(kind, key)
+        try:
+            entry = json.loads(path.read_text(encoding="utf-8"))
+        except FileNotFoundError:
+            return None
+        except (OSError, ValueError):
+            self.notices.append(f"cache entry {path.name} was unreadable; recomputed it")
+            return None
+        if not isinstance(entry, dict) or "payload" not in entry:
+            self.notices.append(f"cache entry {path.name} is not ours; recomputed it")
+            return None
+        payload = entry["payload"]
+        checksum = hashlib.sha256(canonical(payload).encode("utf-8")).hexdigest()
+        if (
+            entry.get("format") != FORMAT
+            or entry.get("key") != key
+            or entry.get("checksum") != checksum
+        ):
+            self.notices.append(f"cache entry {path.name} failed its checksum; recomputed it")
+            return None
+        return payload
+
+    def store(self, kind: str, key: str, payload) -> None:
+        """Keep ``payload`` (JSON-ready) under ``key``; a cache that cannot be written is skipped."""
+        text = canonical(payload)
+        entry = {
+            "format": FORMAT,
+            "key": key,
+            "checksum": hashlib.sha256(text.encode("utf-8")).hexdigest(),
+            "payload": payload,
+        }
+        try:
+            _atomic_write(self._entry(kind, key), canonical(entry).encode("utf-8"))
+        except OSError as exc:
+            self.notices.append(
+                f"could not write the cache in {self.root} ({exc.strerror}); "
+                "the next build will recompute"
+            )
+
+    # -- the chart script -----------------------------------------------------------------
+    def chart_bundle(self, make) -> bytes:
+        """Return the chart script, from the cache when its vl-convert version matches."""
+        version = vl_convert_version()
+        path = self.root / "assets" / f"vega-bundle-{version}.js"
+        check = path.with_suffix(".sha256")
+        if self.enabled:
+            try:
+                data = path.read_bytes()
+                if hashlib.sha256(data).hexdigest() == check.read_text().strip():
+                    return data
+            except OSError:
+                pass
+        data = make()
+        try:
+            _atomic_write(path, data)
+            _atomic_write(check, hashlib.sha256(data).hexdigest().encode("ascii") + b"\n")
+        except OSError:
+            pass  # the bundle is rebuilt next time; nothing depends on the cache copy
+        return data
+
+
+def vl_convert_version() -> str:
+    """Return the installed vl-convert-python version without importing it (that is slow)."""
+    from importlib.metadata import PackageNotFoundError, version
+
+    try:
+        return version("vl-convert-python")
+    except PackageNotFoundError:
+        return "unknown"
