@@ -14,8 +14,8 @@ def build(project, out=None, **options):
     return _build(project, out=out, **options)
 
 
-def check(project):
+def check(project, out=None):
     """Validate the project's manifest and data; return a report of what a build would do."""
     from .pipeline import check as _check
 
-    return _check(project)
+    return _check(project, out=out)

@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import argparse
+import json
 import os
 import sys
 
@@ -40,14 +41,36 @@ def _dataset_lines(reports) -> list[str]:
     return lines
 
 
-def format_build(report) -> str:
-    """Return the few lines the CLI prints after a build."""
-    lines = [f"Built {report.pages} pages from {len(report.datasets)} datasets:"]
+def format_build(report, quiet: bool = False) -> str:
+    """Return the few lines the CLI prints after a build (one line when ``quiet``)."""
+    reused = len(report.reused)
+    if not report.written:
+        head = f"Nothing changed: {report.out} already holds this site; nothing was written."
+    else:
+        n = len(report.datasets)
+        head = f"Built {report.pages} pages from {n} dataset{'' if n == 1 else 's'}"
+        head += f" ({reused} reused unchanged):" if reused else ":"
+    if quiet:
+        return head.rstrip(":") + f" ({report.elapsed:.1f} s)"
+    lines = [head]
     lines += _dataset_lines(report.datasets)
+    lines.append("What moved since the last build:")
+    lines += [f"  {line}" for line in report.changes]
     lines += [f"  note: {n}" for n in report.notices]
-    lines.append(
-        f"Wrote {report.files} files, {_size(report.total_bytes)}, in {report.elapsed:.1f} s."
+    largest = (
+        f"; largest page {report.largest_page} {_size(report.largest_page_bytes)}"
+        if report.largest_page
+        else ""
     )
+    verb = "Wrote" if report.written else "Kept"
+    lines.append(
+        f"{verb} {report.files} files, {_size(report.total_bytes)} ({report.pages} pages, "
+        f"{report.assets} assets {_size(report.asset_bytes)}{largest}), in {report.elapsed:.1f} s."
+    )
+    if report.zip_path is not None:
+        lines.append(f"Zip: {report.zip_path} ({_size(report.zip_bytes)})")
+    if report.single_file_path is not None:
+        lines.append(f"Single file: {report.single_file_path} ({_size(report.single_file_bytes)})")
     lines.append(f"Open {report.index}")
     return "\n".join(lines)
 
@@ -59,6 +82,12 @@ def format_check(report) -> str:
     lines += [f"  note: {n}" for n in report.notices]
     lines.append(f"A build would write the site to {report.out} (nothing was written).")
     return "\n".join(lines)
+
+
+def _debug_flag(command) -> None:
+    command.add_argument(
+        "--debug", action="store_true", default=argparse.SUPPRESS, help=argparse.SUPPRESS
+    )
 
 
 def parser() -> argparse.ArgumentParser:
@@ -77,16 +106,74 @@ def parser() -> argparse.ArgumentParser:
         "--out", help="output folder (default: the manifest's output, inside the project)"
     )
     build.add_argument(
-        "--debug", action="store_true", default=argparse.SUPPRESS, help=argparse.SUPPRESS
+        "--fresh", action="store_true", help="recompute every dataset, ignoring the build cache"
     )
+    build.add_argument("--zip", metavar="PATH", help="also write the site as a zip file here")
+    build.add_argument(
+        "--single-file",
+        metavar="PATH",
+        help="also write the whole site as one HTML file here (for people who cannot unzip)",
+    )
+    build.add_argument(
+        "--watch",
+        action="store_true",
+        help="keep running: rebuild whenever the manifest, a data file or a note changes",
+    )
+    build.add_argument(
+        "--quiet", action="store_true", help="no progress lines; print one line when done"
+    )
+    build.add_argument(
+        "--json", action="store_true", help="print the build report as JSON on standard output"
+    )
+    _debug_flag(build)
 
     check = commands.add_parser("check", help="validate the manifest and data; write nothing")
     check.add_argument("project", help="the project folder (holding manifest.toml)")
     check.add_argument("--out", help="the output folder a build would use")
-    check.add_argument(
-        "--debug", action="store_true", default=argparse.SUPPRESS, help=argparse.SUPPRESS
+    _debug_flag(check)
+
+    new = commands.add_parser(
+        "new", help="create a project folder with a manifest, notes and a small invented dataset"
     )
+    new.add_argument("folder", help="the folder to create (must not exist or be empty)")
+    _debug_flag(new)
     return top
+
+
+def _print_build(report, args) -> None:
+    if args.json:
+        print(json.dumps(report.to_json(), sort_keys=True, indent=1, allow_nan=False))
+    else:
+        print(format_build(report, quiet=args.quiet))
+
+
+def _build(args) -> int:
+    from . import build
+
+    options = {
+        "out": args.out,
+        "fresh": args.fresh,
+        "zip": args.zip,
+        "single_file": args.single_file,
+        "progress": not args.quiet,
+        "quiet": args.quiet,
+    }
+    if not args.watch:
+        _print_build(build(args.project, **options), args)
+        return 0
+    from .watch import watch
+
+    def once(first: bool):
+        # --fresh applies to the first build only; later ones reuse what it computed.
+        report = build(args.project, **{**options, "fresh": args.fresh and first})
+        _print_build(report, args)
+
+    def failed(error: SitebuildError) -> None:
+        print(f"error: {error}", file=sys.stderr)
+
+    print("Watching for changes; press Ctrl-C to stop.", file=sys.stderr)
+    watch(args.project, once, on_error=failed)
+    return 0
 
 
 def main(argv: list[str] | None = None) -> int:
@@ -95,15 +182,18 @@ def main(argv: list[str] | None = None) -> int:
     debug = getattr(args, "debug", False) or os.environ.get("SITEBUILD_DEBUG") == "1"
     try:
         if args.command == "build":
-            from . import build
-
-            report = build(args.project, out=args.out)
-            print(format_build(report))
-        elif args.command == "check":
+            return _build(args)
+        if args.command == "check":
             from . import check
 
             report = check(args.project, out=args.out)
             print(format_check(report))
+        elif args.command == "new":
+            from .scaffold import new_project
+
+            made = new_project(args.folder)
+            print(f"Created {made.root} with {', '.join(made.files)}.")
+            print(f"Build it with: sitebuild build {args.folder}")
         return 0
     except SitebuildError as error:
         if debug:
@@ -111,8 +201,20 @@ def main(argv: list[str] | None = None) -> int:
         print(f"error: {error}", file=sys.stderr)
         return error.exit_code
     except KeyboardInterrupt:
+        if args.command == "build" and getattr(args, "watch", False):
+            print("Stopped watching.", file=sys.stderr)
+            return 0
         print("error: interrupted; the previous site is unchanged.", file=sys.stderr)
         return 130
+    except Exception as error:  # noqa: BLE001 - one line for users; --debug shows the rest
+        if debug:
+            raise
+        print(
+            f"error: unexpected failure ({type(error).__name__}: {error}); the previous site is "
+            "unchanged — run again with --debug to see where, and report it.",
+            file=sys.stderr,
+        )
+        return 1
 
 
 if __name__ == "__main__":

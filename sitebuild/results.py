@@ -48,4 +48,14 @@ def schema() -> dict:
                 set(dataset["required"]) | set(fragment.get("required", []))
             )
             core["$defs"].update(fragment.get("$defs", {}))
+    # Top-level keys (e.g. changes, history) come from schema/top/*.json the same way.
+    top = base / "top"
+    if top.is_dir():
+        for fragment_file in sorted(top.iterdir(), key=lambda p: p.name):
+            if not fragment_file.name.endswith(".json"):
+                continue
+            fragment = json.loads(fragment_file.read_text(encoding="utf-8"))
+            core["properties"].update(fragment.get("properties", {}))
+            core["required"] = sorted(set(core["required"]) | set(fragment.get("required", [])))
+            core["$defs"].update(fragment.get("$defs", {}))
     return core

@@ -112,7 +112,7 @@ def render_single(
     }
     index_html = _main_block(env, "index.html", index_context)
     sections.append((anchors["index.html"][0], _rewrite(index_html, "o--", anchors, files)))
-    for i, (ds, spec) in enumerate(zip(results["datasets"], manifest.datasets, strict=True)):
+    for ds, spec in zip(results["datasets"], manifest.datasets, strict=True):
         context, _ = render.dataset_page(env, common, ds, spec)
         prefix = anchors[f"{ds['slug']}.html"][1]
         html = _main_block(env, "dataset.html", context)
@@ -136,8 +136,10 @@ def render_single(
     bundle_text = script_text(files[render.ASSET_BUNDLE].decode("utf-8"))
     site_js = script_text(files["assets/site.js"].decode("utf-8"))
     page = env.get_template("single.html").render(
-        **common,
-        nav=[(ds["name"], anchors[f"{ds['slug']}.html"][0]) for ds in results["datasets"]],
+        **{
+            **common,
+            "nav": [(ds["name"], anchors[f"{ds['slug']}.html"][0]) for ds in results["datasets"]],
+        },
         has_changes=changes is not None,
         css=Markup(style_text(files["assets/style.css"].decode("utf-8"))),
         sections=[(anchor, Markup(html)) for anchor, html in sections],
