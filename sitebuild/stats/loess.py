@@ -230,8 +230,8 @@ def _local_fit(
             rows_parts.append(((slice(start, stop), slice(left, right)), u))
     a_mat = np.empty((v, d + 1, d + 1))
     for j in range(d + 1):
-        for l in range(d + 1):
-            a_mat[:, j, l] = s[:, j + l]
+        for m in range(d + 1):
+            a_mat[:, j, m] = s[:, j + m]
     e0 = np.zeros((v, d + 1))
     e0[:, 0] = 1.0
     # A is symmetric positive semi-definite; where it is near singular (too few distinct x
@@ -250,8 +250,8 @@ def _local_fit(
     if want_norm:
         norm2 = np.zeros(v)
         for j in range(d + 1):
-            for l in range(d + 1):
-                norm2 += a[:, j] * a[:, l] * g[:, j + l]
+            for m in range(d + 1):
+                norm2 += a[:, j] * a[:, m] * g[:, j + m]
     if want_rows:
         for (row_part, col_part), u in rows_parts:
             poly = np.zeros_like(u)
@@ -328,9 +328,12 @@ class _Smoother:
             targets = (np.arange(VERTICES) + 0.5) * (self.n / VERTICES)
             quantile_points = self.bins.centre[np.searchsorted(cum, targets)]
             self.vertices = np.unique(np.concatenate([self.grid, quantile_points]))
-            self.plain = _moments(self.bins, y, None, 1)  # unweighted, for the RSS
             self.yy = float(y @ y)
-        self.tss = float(np.sum((y - y.mean()) ** 2))
+        self.start = _moments(self.bins, y, None, degree)  # unweighted
+        # The RSS uses unweighted moments up to degree 1 (value and slope in each bin).
+        self.plain = _Moments(self.start.mx[:, :3], self.start.my[:, :2], self.start.mx2[:, :3])
+        centred = y - y.mean()
+        self.tss = float(centred @ centred)
 
     def evaluate(self, moments, span, want_norm, want_fitted):
         """Return (fitted at the data or None, RSS, tr(L), tr(L'L) or None, local at grid)."""
@@ -419,7 +422,7 @@ def choose_span(
 
 
 def _choose(smoother: _Smoother, candidates) -> SpanChoice:
-    moments = _moments(smoother.bins, smoother.y, None, smoother.degree)
+    moments = smoother.start
     scores: list[float | None] = []
     for span in candidates:
         if int(span * smoother.n + 1e-10) < smoother.degree + 2:
@@ -488,7 +491,7 @@ def loess(
     if not 0 < span <= 1:
         raise ValueError("span must be in (0, 1] or 'auto'")
     x, y = smoother.x, smoother.y  # sorted on the exact path
-    moments = _moments(smoother.bins, y, None, degree)
+    moments = smoother.start
     for _ in range(robust_iterations):
         fitted, _, _, _, _ = smoother.evaluate(moments, span, False, True)
         weights = _bisquare_weights(y - fitted)

@@ -1,0 +1,212 @@
+"""Correlation heatmaps and scatter plots with fitted smooths. Specs are plain dicts with
+inline data under fixed field names; user text appears only as data values and titles."""
+
+from __future__ import annotations
+
+from .theme import DIVERGING, INK, MUTED, group_colour_scale, themed
+
+NULL_FILL = "#eceff2"
+
+
+def _label(value: float | None) -> str:
+    if value is None:
+        return "—"
+    return "0.00" if abs(value) < 0.005 else f"{value:.2f}"
+
+
+def correlation_heatmap(cells: list[dict], columns: list[str], alpha: float) -> dict:
+    """Return a heatmap spec of correlation cells (both triangles, no diagonal)."""
+    values = []
+    for c in cells:
+        significant = c["p_adjusted"] is not None and c["p_adjusted"] < alpha
+        for a, b in ((c["a"], c["b"]), (c["b"], c["a"])):
+            values.append(
+                {
+                    "a": a,
+                    "b": b,
+                    "value": c["r"],
+                    "label": _label(c["r"]),
+                    "sig": bool(significant),
+                    "n": c["n"],
+                    "p": c["p_adjusted"],
+                    "note": c["note"] or "",
+                }
+            )
+    size = max(36 * len(columns), 120)
+    x = {"field": "a", "type": "nominal", "sort": list(columns), "title": None}
+    y = {"field": "b", "type": "nominal", "sort": list(columns), "title": None}
+    tooltip = [
+        {"field": "a", "type": "nominal", "title": "Column"},
+        {"field": "b", "type": "nominal", "title": "With"},
+        {"field": "label", "type": "nominal", "title": "r"},
+        {"field": "n", "type": "quantitative", "title": "Pairs"},
+        {"field": "p", "type": "quantitative", "title": "p adjusted", "format": ".3g"},
+        {"field": "note", "type": "nominal", "title": "Note"},
+    ]
+    spec = {
+        "data": {"values": values},
+        "width": size,
+        "height": size,
+        "encoding": {"x": x, "y": y},
+        "layer": [
+            {"mark": {"type": "rect", "fill": NULL_FILL}},
+            {
+                "transform": [{"filter": "isValid(datum.value)"}],
+                "mark": {"type": "rect", "strokeWidth": 1},
+                "encoding": {
+                    "color": {
+                        "field": "value",
+                        "type": "quantitative",
+                        "title": "r",
+                        "scale": {"domain": [-1, 1], "range": list(DIVERGING)},
+                    },
+                    "opacity": {"condition": {"test": "datum.sig", "value": 1}, "value": 0.3},
+                    "stroke": {"condition": {"test": "datum.sig", "value": None}, "value": MUTED},
+                    "strokeDash": {
+                        "condition": {"test": "datum.sig", "value": [1, 0]},
+                        "value": [3, 2],
+                    },
+                    "tooltip": tooltip,
+                },
+            },
+            {
+                "mark": {"type": "text", "fontSize": 11},
+                "encoding": {
+                    "text": {"field": "label", "type": "nominal"},
+                    "color": {
+                        "condition": [
+                            {"test": "!datum.sig", "value": MUTED},
+                            {"test": "abs(datum.value) > 0.6", "value": "#ffffff"},
+                        ],
+                        "value": INK,
+                    },
+                    "fontStyle": {
+                        "condition": {"test": "datum.sig", "value": "normal"},
+                        "value": "italic",
+                    },
+                    "tooltip": tooltip,
+                },
+            },
+        ],
+    }
+    return themed(spec)
+
+
+def scatter_with_smooths(
+    scatter: dict, smooths: list[dict], line: dict | None, groups: list[str]
+) -> dict:
+    """Return a scatter of sampled points by group with LOESS lines, bands and a straight line."""
+    colour = {
+        "field": "group",
+        "type": "nominal",
+        "title": "Group",
+        "scale": group_colour_scale(groups),
+    }
+    x = {"field": "x", "type": "quantitative", "title": scatter["x"], "scale": {"zero": False}}
+    y_title = scatter["y"]
+    group_curves = [
+        {"group": s["group"], **p}
+        for s in smooths
+        if s["group"] is not None
+        for p in s["points"]
+        if p["fit"] is not None
+    ]
+    overall = [
+        p for s in smooths if s["group"] is None for p in s["points"] if p["fit"] is not None
+    ]
+    layers: list[dict] = [
+        {
+            "data": {"values": scatter["points"]},
+            "mark": {"type": "circle", "size": 14, "opacity": 0.45},
+            "encoding": {
+                "x": x,
+                "y": {
+                    "field": "y",
+                    "type": "quantitative",
+                    "title": y_title,
+                    "scale": {"zero": False},
+                },
+                "color": colour,
+                "tooltip": [
+                    {"field": "group", "type": "nominal", "title": "Group"},
+                    {"field": "x", "type": "quantitative", "title": scatter["x"]},
+                    {"field": "y", "type": "quantitative", "title": y_title},
+                ],
+            },
+        }
+    ]
+    if group_curves:
+        band = [p for p in group_curves if p["low"] is not None and p["high"] is not None]
+        layers.append(
+            {
+                "data": {"values": band},
+                "mark": {"type": "area", "opacity": 0.12},
+                "encoding": {
+                    "x": x,
+                    "y": {"field": "low", "type": "quantitative"},
+                    "y2": {"field": "high"},
+                    "color": colour,
+                },
+            }
+        )
+        layers.append(
+            {
+                "data": {"values": group_curves},
+                "mark": {"type": "line", "strokeWidth": 1.8},
+                "encoding": {
+                    "x": x,
+                    "y": {"field": "fit", "type": "quantitative"},
+                    "color": colour,
+                    "detail": {"field": "group", "type": "nominal"},
+                },
+            }
+        )
+    if overall:
+        band = [p for p in overall if p["low"] is not None and p["high"] is not None]
+        layers.append(
+            {
+                "data": {"values": band},
+                "mark": {"type": "area", "color": INK, "opacity": 0.15},
+                "encoding": {
+                    "x": x,
+                    "y": {"field": "low", "type": "quantitative"},
+                    "y2": {"field": "high"},
+                },
+            }
+        )
+        # A white casing under the all-rows smooth keeps it apart from the group lines.
+        layers.append(
+            {
+                "data": {"values": overall},
+                "mark": {"type": "line", "color": "#ffffff", "strokeWidth": 5.5},
+                "encoding": {"x": x, "y": {"field": "fit", "type": "quantitative"}},
+            }
+        )
+        layers.append(
+            {
+                "data": {"values": overall},
+                "mark": {"type": "line", "color": INK, "strokeWidth": 3},
+                "encoding": {
+                    "x": x,
+                    "y": {"field": "fit", "type": "quantitative"},
+                    "tooltip": [
+                        {"field": "x", "type": "quantitative", "title": scatter["x"]},
+                        {"field": "fit", "type": "quantitative", "title": "smooth, all rows"},
+                        {"field": "low", "type": "quantitative", "title": "band low"},
+                        {"field": "high", "type": "quantitative", "title": "band high"},
+                    ],
+                },
+            }
+        )
+    if line and line["slope"] is not None and overall:
+        lo, hi = overall[0]["x"], overall[-1]["x"]
+        ends = [{"x": v, "fit": line["intercept"] + line["slope"] * v} for v in (lo, hi)]
+        layers.append(
+            {
+                "data": {"values": ends},
+                "mark": {"type": "line", "color": MUTED, "strokeDash": [6, 4], "strokeWidth": 1.6},
+                "encoding": {"x": x, "y": {"field": "fit", "type": "quantitative"}},
+            }
+        )
+    spec = {"height": 300, "layer": layers}
+    return themed(spec)

@@ -1,0 +1,494 @@
+"""How the measures move together: correlation tables, fitted smooths against x, and the
+check for relationships that are strong but not straight.
+
+Results keys: ``correlations``, ``smooths``, ``relationships`` (contract), and
+``correlation_family``, ``linear_fits``, ``scatter``, ``reversals``, ``relationship_columns``.
+"""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+
+from ..stats.correlation import correlation_tables
+from ..stats.curvature import RULE, curvature_check, straight_line
+from ..stats.loess import loess
+from ..stats.multiplicity import METHOD_NAMES, adjust_pvalues
+from . import Chart, DataTable
+
+SCATTER_LIMIT = 5_000  # points shipped per scatter chart
+PAIR_SMOOTH_LIMIT = 50_000  # rows used for the measure-against-measure curvature check
+METHOD_LABELS = {"pearson": "Pearson r", "spearman": "Spearman rho", "kendall": "Kendall tau-b"}
+
+
+def _num(value) -> float | None:
+    """A finite float or None (results.json never holds NaN or Infinity)."""
+    if value is None:
+        return None
+    value = float(value)
+    return value if math.isfinite(value) else None
+
+
+def _short(value: float | None) -> float | None:
+    """Round to 6 significant digits for the shipped points (keeps pages small)."""
+    value = _num(value)
+    return None if value is None else float(f"{value:.6g}")
+
+
+def _note_for(reason: str | None, a: str, b: str) -> str | None:
+    if reason is None:
+        return None
+    if reason == "x has no variation":
+        return f"'{a}' has the same value in every row here, so no correlation can be computed"
+    if reason == "y has no variation":
+        return f"'{b}' has the same value in every row here, so no correlation can be computed"
+    if reason.startswith("fewer than"):
+        return f"{reason}, so no correlation can be computed"
+    return reason
+
+
+def _scopes(table) -> tuple[np.ndarray, np.ndarray]:
+    key = table.codes.astype(np.int16) if len(table.groups) < 32_000 else table.codes
+    order = np.argsort(key, kind="stable")
+    bounds = np.searchsorted(key[order], np.arange(len(table.groups) + 1))
+    return order, bounds
+
+
+def _correlations(table, names, settings, rng) -> tuple[list[dict], dict]:
+    data = np.column_stack([table.values(name) for name in names])
+    results = correlation_tables(
+        data, table.codes, len(table.groups), level=settings.confidence, rng=rng
+    )
+    out: list[dict] = []
+    for result in results:
+        group = None if result.group is None else table.groups[result.group]
+        adjusted = adjust_pvalues([c.p for _, _, c in result.pairs], settings.adjust)
+        for (i, j, c), p_adj in zip(result.pairs, adjusted, strict=True):
+            a, b = names[i], names[j]
+            note = _note_for(c.reason, a, b)
+            if c.r is not None and c.method == "kendall":
+                note = "no interval is computed for Kendall's tau-b"
+                if c.n_available:
+                    note += (
+                        f"; computed on a random sample of {c.n:,} of the "
+                        f"{c.n_available:,} complete pairs"
+                    )
+            elif c.r is not None and c.ci_low is None:
+                note = "the interval needs at least 4 pairs"
+            out.append(
+                {
+                    "group": group,
+                    "a": a,
+                    "b": b,
+                    "method": c.method,
+                    "n": int(c.n),
+                    "r": _num(c.r),
+                    "ci_low": _num(c.ci_low),
+                    "ci_high": _num(c.ci_high),
+                    "p": _num(c.p),
+                    "p_adjusted": _num(p_adj),
+                    "note": note,
+                }
+            )
+    pairs = len(names) * (len(names) - 1) // 2
+    family = {
+        "adjust": settings.adjust,
+        "adjust_name": METHOD_NAMES[settings.adjust],
+        "alpha": settings.alpha,
+        "level": settings.confidence,
+        "scope": "one table: one set of rows (all rows or one group) and one method",
+        "size": pairs,
+        "description": (
+            f"p-values are adjusted ({METHOD_NAMES[settings.adjust]}) within each table: "
+            f"the {pairs} pairs of one method for all rows, or for one group."
+        ),
+    }
+    return out, family
+
+
+def _reversals(correlations: list[dict], names: list[str], n_groups: int) -> list[dict]:
+    """Pairs whose pooled Pearson r points one way and every within-group r the other."""
+    if n_groups < 2:
+        return []
+    pearson = [c for c in correlations if c["method"] == "pearson"]
+    out = []
+    for i, a in enumerate(names):
+        for b in names[i + 1 :]:
+            pooled = next(
+                (c for c in pearson if c["group"] is None and c["a"] == a and c["b"] == b), None
+            )
+            within = [c for c in pearson if c["group"] is not None and c["a"] == a and c["b"] == b]
+            rs = [c["r"] for c in within if c["r"] is not None]
+            if pooled is None or pooled["r"] is None or len(rs) < 2:
+                continue
+            r0 = pooled["r"]
+            # Common practice: ignore tiny coefficients, whose sign is noise.
+            if abs(r0) < 0.1 or not all(r * r0 < 0 and abs(r) >= 0.1 for r in rs):
+                continue
+            pooled_way = "rise together" if r0 > 0 else "move in opposite directions"
+            within_way = "move in opposite directions" if r0 > 0 else "rise together"
+            sentence = (
+                f"Across all rows '{a}' and '{b}' {pooled_way} (r = {r0:.2f}), but inside "
+                f"every group they {within_way} (r from {min(rs):.2f} to {max(rs):.2f}). "
+                "The pooled figure mostly reflects differences between the groups, not the "
+                "pattern inside any one of them."
+            )
+            out.append(
+                {
+                    "a": a,
+                    "b": b,
+                    "pooled_r": r0,
+                    "within_low": min(rs),
+                    "within_high": max(rs),
+                    "groups": len(rs),
+                    "sentence": sentence,
+                }
+            )
+    return out
+
+
+def _curve_note(a: str, b: str, line_r2, check, r: float | None = None) -> str | None:
+    if check.reason:
+        return check.reason
+    if not check.curved:
+        return None
+    if r is None:
+        size = ""
+    elif abs(r) < 0.3:
+        size = f"Pearson's r is only {r:.2f}, yet "
+    else:
+        size = f"Pearson's r is {r:.2f}, and beyond that straight-line trend "
+    return (
+        f"{size}'{b}' follows a clear curve against '{a}': the smooth explains "
+        f"{100 * check.smooth_adj_r2:.0f}% of its variation, a straight line only "
+        f"{100 * max(line_r2, 0.0):.0f}%. A correlation coefficient measures only the "
+        "straight-line part of a relationship."
+    )
+
+
+def _relationship(group, a, b, xv, yv, fit, level, r=None) -> tuple[dict, dict]:
+    line = straight_line(xv, yv, level)
+    if fit.reason or line.reason:
+        check = curvature_check(None, None, line.n, None)
+        reason = line.reason or fit.reason
+    else:
+        check = curvature_check(line.r2, fit.r2, line.n, fit.delta1)
+        reason = None
+    entry = {
+        "group": group,
+        "a": a,
+        "b": b,
+        "n": int(line.n),
+        "linear_r2": _num(check.linear_r2 if not reason else line.r2),
+        "smooth_r2": _num(check.smooth_r2 if not reason else fit.r2),
+        "linear_adj_r2": _num(check.linear_adj_r2),
+        "smooth_adj_r2": _num(check.smooth_adj_r2),
+        "curved": bool(check.curved),
+        "note": reason if reason else _curve_note(a, b, line.r2, check, r),
+    }
+    line_entry = {
+        "group": group,
+        "x": a,
+        "y": b,
+        "n": int(line.n),
+        "slope": _num(line.slope),
+        "slope_low": _num(line.slope_low),
+        "slope_high": _num(line.slope_high),
+        "intercept": _num(line.intercept),
+        "p": _num(line.p),
+        "r2": _num(line.r2),
+        "level": level,
+        "note": line.reason,
+    }
+    return entry, line_entry
+
+
+def _smooth_entry(group, x_name, y_name, fit) -> dict:
+    points = [
+        {"x": _short(a), "fit": _short(f), "low": _short(lo), "high": _short(hi)}
+        for a, f, lo, hi in zip(fit.x, fit.fit, fit.low, fit.high, strict=True)
+    ]
+    note = fit.reason
+    if fit.binned and not note:
+        note = "fitted on binned data (all rows used)"
+    return {
+        "group": group,
+        "x": x_name,
+        "y": y_name,
+        "method": "loess",
+        "span": _num(fit.span),
+        "degree": fit.degree,
+        "robust_iterations": fit.robust_iterations,
+        "n": int(fit.n),
+        "enp": _num(fit.enp),
+        "residual_scale": _num(fit.residual_scale),
+        "lookup_df": _num(fit.lookup_df),
+        "level": fit.level,
+        "binned": bool(fit.binned),
+        "note": note,
+        "points": points,
+    }
+
+
+def _sample(codes: np.ndarray, n_groups: int, limit: int, rng) -> np.ndarray:
+    """Row positions of a group-stratified sample: proportional quotas, small groups whole."""
+    n = codes.size
+    if n <= limit:
+        return np.arange(n)
+    # Small integer codes sort by radix (linear time).
+    key = codes.astype(np.int16) if n_groups < 32_000 else codes
+    order = np.argsort(key, kind="stable")
+    bounds = np.searchsorted(key[order], np.arange(n_groups + 1))
+    sizes = np.diff(bounds)
+    # Every group gets at least a fair share floor so small groups stay visible.
+    floor = np.minimum(sizes, limit // max(2 * n_groups, 1))
+    rest = limit - int(floor.sum())
+    extra = np.floor((sizes - floor) * rest / max(int((sizes - floor).sum()), 1)).astype(int)
+    quota = np.minimum(sizes, floor + extra)
+    picks = [
+        order[bounds[g] + np.sort(rng.choice(sizes[g], size=int(quota[g]), replace=False))]
+        for g in range(n_groups)
+        if quota[g]
+    ]
+    return np.sort(np.concatenate(picks)) if picks else np.zeros(0, dtype=np.int64)
+
+
+def compute(table, settings, rng: np.random.Generator, partial: dict | None = None) -> dict:
+    """Return this section's results.json keys for one dataset (JSON-ready)."""
+    spec = table.spec
+    x_name = spec.x
+    measures = [m for m in spec.measures if m != x_name]
+    names = list(dict.fromkeys([*spec.measures, *([x_name] if x_name else [])]))
+    groups = list(table.groups)
+    correlations, family = _correlations(table, names, settings, rng)
+    pearson_r = {}
+    for c in correlations:
+        if c["method"] == "pearson":
+            pearson_r[(c["group"], c["a"], c["b"])] = c["r"]
+            pearson_r[(c["group"], c["b"], c["a"])] = c["r"]
+    smooths: list[dict] = []
+    relationships: list[dict] = []
+    linear_fits: list[dict] = []
+    scatter: list[dict] = []
+    order, bounds = _scopes(table)
+    level = settings.confidence
+    span = spec.smooth_span
+    if x_name:
+        x_all = table.values(x_name)
+        for measure in measures:
+            y_all = table.values(measure)
+            scopes = [(None, x_all, y_all)]
+            xs, ys = x_all[order], y_all[order]
+            for g, label in enumerate(groups):
+                part = slice(bounds[g], bounds[g + 1])
+                scopes.append((label, xs[part], ys[part]))
+            for label, xv, yv in scopes:
+                keep = ~(np.isnan(xv) | np.isnan(yv))
+                xv, yv = xv[keep], yv[keep]
+                fit = loess(xv, yv, span, spec.smooth_degree, spec.smooth_robust, level)
+                smooths.append(_smooth_entry(label, x_name, measure, fit))
+                r = pearson_r.get((label, x_name, measure))
+                rel, line = _relationship(label, x_name, measure, xv, yv, fit, level, r)
+                relationships.append(rel)
+                linear_fits.append(line)
+            complete = np.flatnonzero(~(np.isnan(x_all) | np.isnan(y_all)))
+            picked = complete[_sample(table.codes[complete], len(groups), SCATTER_LIMIT, rng)]
+            scatter.append(
+                {
+                    "x": x_name,
+                    "y": measure,
+                    "n_total": int(complete.size),
+                    "n_shown": int(picked.size),
+                    "sampled": bool(picked.size < complete.size),
+                    "points": [
+                        {"group": groups[c], "x": _short(a), "y": _short(b)}
+                        for c, a, b in zip(
+                            table.codes[picked].tolist(),
+                            x_all[picked].tolist(),
+                            y_all[picked].tolist(),
+                            strict=True,
+                        )
+                    ],
+                }
+            )
+    # Measure against measure, all rows only (cheap: a bounded seeded sample of rows).
+    for i, a in enumerate(measures):
+        for b in measures[i + 1 :]:
+            xa, yb = table.values(a), table.values(b)
+            rows = np.flatnonzero(~(np.isnan(xa) | np.isnan(yb)))
+            if rows.size > PAIR_SMOOTH_LIMIT:
+                rows = np.sort(rng.choice(rows, size=PAIR_SMOOTH_LIMIT, replace=False))
+            xv, yv = xa[rows], yb[rows]
+            fit = loess(xv, yv, span, spec.smooth_degree, spec.smooth_robust, level)
+            rel, _ = _relationship(None, a, b, xv, yv, fit, level, pearson_r.get((None, a, b)))
+            total = int(np.sum(~(np.isnan(xa) | np.isnan(yb))))
+            if rows.size < total:
+                sampled = f"checked on a random sample of {rows.size:,} of {total:,} rows"
+                rel["note"] = f"{rel['note']} ({sampled})" if rel["note"] else sampled
+            relationships.append(rel)
+    return {
+        "correlations": correlations,
+        "smooths": smooths,
+        "relationships": relationships,
+        "correlation_family": family,
+        "linear_fits": linear_fits,
+        "scatter": scatter,
+        "reversals": _reversals(correlations, names, len(groups)),
+        "relationship_columns": {
+            "columns": names,
+            "measures": measures,
+            "x": x_name,
+            "groups": groups,
+            "curve_rule": RULE,
+        },
+    }
+
+
+def charts(dataset: dict, settings) -> list[Chart]:
+    """Return the heatmaps (all rows, each group) and one scatter with smooths per measure."""
+    from ..charts.relationships import correlation_heatmap, scatter_with_smooths
+
+    info = dataset.get("relationship_columns")
+    if not info:
+        return []
+    out = []
+    scopes = [(None, "all")] + [(g, f"g{k + 1}") for k, g in enumerate(info["groups"])]
+    for group, suffix in scopes:
+        cells = [
+            c for c in dataset["correlations"] if c["method"] == "pearson" and c["group"] == group
+        ]
+        if not cells:
+            continue
+        where = "all rows" if group is None else f"group '{group}'"
+        out.append(
+            Chart(
+                id=f"rel-heat-{suffix}",
+                title="Pearson correlations, " + where,
+                description=(
+                    f"Heatmap of Pearson correlations between every pair of columns for {where};"
+                    " each cell prints r, faded cells are not significant after adjustment."
+                ),
+                spec=correlation_heatmap(cells, info["columns"], settings.alpha),
+                table=f"rel-corr-{suffix}",
+            )
+        )
+    for k, scatter in enumerate(dataset.get("scatter", [])):
+        y = scatter["y"]
+        smooths = [s for s in dataset["smooths"] if s["y"] == y]
+        line = next((f for f in dataset["linear_fits"] if f["y"] == y and f["group"] is None), None)
+        shown = (
+            f"a random sample of {scatter['n_shown']:,} of {scatter['n_total']:,} points"
+            if scatter["sampled"]
+            else f"all {scatter['n_total']:,} points"
+        )
+        out.append(
+            Chart(
+                id=f"rel-scatter-{k + 1}",
+                title=f"{y} against {scatter['x']}",
+                description=(
+                    f"Scatter of {shown}, coloured by group, with a LOESS smooth and its "
+                    "pointwise band for each group and for all rows, and the straight-line fit "
+                    "for all rows."
+                ),
+                spec=scatter_with_smooths(scatter, smooths, line, info["groups"]),
+                table="rel-lines",
+            )
+        )
+    return out
+
+
+def tables(dataset: dict, settings) -> list[DataTable]:
+    """Return the correlation table per scope, the curvature table and the straight lines."""
+    info = dataset.get("relationship_columns")
+    if not info:
+        return []
+    family = dataset["correlation_family"]
+    columns = (
+        ("a", "Column"),
+        ("b", "With"),
+        ("method", "Method"),
+        ("n", "Pairs"),
+        ("r", "Coefficient"),
+        ("ci_low", "Interval low"),
+        ("ci_high", "Interval high"),
+        ("p", "p"),
+        ("p_adjusted", "p adjusted"),
+        ("note", "Note"),
+    )
+    out = []
+    scopes = [(None, "all")] + [(g, f"g{k + 1}") for k, g in enumerate(info["groups"])]
+    for group, suffix in scopes:
+        rows = tuple(
+            {key: c[key] for key, _ in columns} | {"method": METHOD_LABELS[c["method"]]}
+            for c in dataset["correlations"]
+            if c["group"] == group
+        )
+        if not rows:
+            continue
+        where = "all rows" if group is None else f"group '{group}'"
+        out.append(
+            DataTable(
+                id=f"rel-corr-{suffix}",
+                title=f"Correlations, {where}",
+                columns=columns,
+                rows=rows,
+                caption=(
+                    f"{round(100 * settings.confidence)}% intervals by Fisher's z (Spearman with "
+                    "the Bonett–Wright standard error); " + family["description"]
+                ),
+            )
+        )
+    if dataset["relationships"]:
+        out.append(
+            DataTable(
+                id="rel-curves",
+                title="Straight line or curve?",
+                columns=(
+                    ("group", "Group"),
+                    ("a", "Across"),
+                    ("b", "Measure"),
+                    ("n", "Rows"),
+                    ("linear_r2", "Line R²"),
+                    ("smooth_r2", "Smooth R²"),
+                    ("linear_adj_r2", "Line adjusted R²"),
+                    ("smooth_adj_r2", "Smooth adjusted R²"),
+                    ("curved", "Curved"),
+                    ("note", "Note"),
+                ),
+                rows=tuple(
+                    r | {"group": "all rows" if r["group"] is None else r["group"]}
+                    for r in dataset["relationships"]
+                ),
+                caption="The rule: " + info["curve_rule"] + ".",
+            )
+        )
+    if dataset["linear_fits"]:
+        out.append(
+            DataTable(
+                id="rel-lines",
+                title="Straight-line fits",
+                columns=(
+                    ("group", "Group"),
+                    ("y", "Measure"),
+                    ("x", "Across"),
+                    ("n", "Rows"),
+                    ("slope", "Slope"),
+                    ("slope_low", "Slope interval low"),
+                    ("slope_high", "Slope interval high"),
+                    ("intercept", "Intercept"),
+                    ("r2", "R²"),
+                    ("p", "p (slope = 0)"),
+                    ("note", "Note"),
+                ),
+                rows=tuple(
+                    f | {"group": "all rows" if f["group"] is None else f["group"]}
+                    for f in dataset["linear_fits"]
+                ),
+                caption=(
+                    f"Least-squares lines with {round(100 * settings.confidence)}% t intervals for "
+                    "the slope."
+                ),
+            )
+        )
+    return out
