@@ -1,0 +1,172 @@
+"""Correlation coefficients against scipy.stats and a published dataset."""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+import pytest
+from scipy import stats
+
+from sitebuild.stats.correlation import (
+    correlation_tables,
+    kendall,
+    pearson,
+    rank_average,
+    spearman,
+)
+
+# Anscombe, F. J. (1973). Graphs in statistical analysis. The American Statistician 27(1),
+# 17-21: the four data sets of the paper's table, typed in.
+ANSCOMBE_X = [10, 8, 13, 9, 11, 14, 6, 4, 12, 7, 5]
+ANSCOMBE_X4 = [8, 8, 8, 8, 8, 8, 8, 19, 8, 8, 8]
+ANSCOMBE = {
+    "I": (ANSCOMBE_X, [8.04, 6.95, 7.58, 8.81, 8.33, 9.96, 7.24, 4.26, 10.84, 4.82, 5.68]),
+    "II": (ANSCOMBE_X, [9.14, 8.14, 8.74, 8.77, 9.26, 8.10, 6.13, 3.10, 9.13, 7.26, 4.74]),
+    "III": (ANSCOMBE_X, [7.46, 6.77, 12.74, 7.11, 7.81, 8.84, 6.08, 5.39, 8.15, 6.42, 5.73]),
+    "IV": (ANSCOMBE_X4, [6.58, 5.76, 7.71, 8.84, 8.47, 7.04, 5.25, 12.50, 5.56, 7.91, 6.89]),
+}
+
+
+def _data(seed: int = 7, n: int = 120):
+    rng = np.random.default_rng(seed)
+    x = rng.normal(size=n)
+    y = 0.5 * x + rng.normal(size=n)
+    y = np.round(y, 1)  # ties, so the tie handling is exercised
+    x[[3, 17]] = np.nan
+    y[[5, 17, 30]] = np.nan
+    return x, y
+
+
+def _complete(x, y):
+    keep = ~(np.isnan(x) | np.isnan(y))
+    return x[keep], y[keep]
+
+
+def test_pearson_matches_scipy_pearsonr_and_its_fisher_interval():
+    x, y = _data()
+    ours = pearson(x, y, level=0.9)
+    cx, cy = _complete(x, y)
+    ref = stats.pearsonr(cx, cy)  # reference library: scipy.stats
+    assert ours.n == cx.size
+    assert ours.r == pytest.approx(ref.statistic, abs=1e-12)
+    assert ours.p == pytest.approx(ref.pvalue, rel=1e-9)
+    # scipy's interval for pearsonr is Fisher's z transformation.
+    ci = ref.confidence_interval(confidence_level=0.9)
+    assert ours.ci_low == pytest.approx(ci.low, abs=1e-12)
+    assert ours.ci_high == pytest.approx(ci.high, abs=1e-12)
+
+
+def test_fisher_interval_matches_textbook_formula():
+    # Direct formula: Fisher (1921); e.g. Zar, Biostatistical Analysis (5th ed., 2010), eq. 19.18
+    # (from memory): z = atanh r, z -/+ 1.96 / sqrt(n - 3), back-transformed with tanh.
+    x, y = _data(seed=11, n=40)
+    ours = pearson(x, y)
+    n = ours.n
+    z = math.atanh(ours.r)
+    half = stats.norm.ppf(0.975) / math.sqrt(n - 3)
+    assert ours.ci_low == pytest.approx(math.tanh(z - half), abs=1e-12)
+    assert ours.ci_high == pytest.approx(math.tanh(z + half), abs=1e-12)
+
+
+def test_spearman_matches_scipy_and_bonett_wright_interval():
+    x, y = _data()
+    ours = spearman(x, y)
+    cx, cy = _complete(x, y)
+    ref = stats.spearmanr(cx, cy)  # reference library: scipy.stats
+    assert ours.r == pytest.approx(ref.statistic, abs=1e-12)
+    assert ours.p == pytest.approx(ref.pvalue, rel=1e-9)
+    # Bonett & Wright (2000), Psychometrika 65(1): se = sqrt((1 + r^2 / 2) / (n - 3)).
+    se = math.sqrt((1 + ours.r**2 / 2) / (ours.n - 3))
+    z = math.atanh(ours.r)
+    assert ours.ci_low == pytest.approx(math.tanh(z - 1.959963984540054 * se), abs=1e-12)
+    assert ours.ci_high == pytest.approx(math.tanh(z + 1.959963984540054 * se), abs=1e-12)
+
+
+def test_kendall_tau_b_matches_scipy_with_ties():
+    x, y = _data()
+    ours = kendall(x, y)
+    cx, cy = _complete(x, y)
+    ref = stats.kendalltau(cx, cy, variant="b")  # reference library: scipy.stats
+    assert ours.r == pytest.approx(ref.statistic, abs=1e-12)
+    assert ours.p == pytest.approx(ref.pvalue, rel=1e-9)
+    assert ours.ci_low is None and ours.reason
+
+
+def test_kendall_sample_reports_sizes_and_stays_close_to_full_data():
+    rng = np.random.default_rng(3)
+    x = rng.normal(size=60_000)
+    y = x + rng.normal(size=60_000)
+    ours = kendall(x, y, limit=20_000, rng=np.random.default_rng(5))
+    full = stats.kendalltau(x, y).statistic  # reference library: scipy.stats, all rows
+    assert ours.n == 20_000 and ours.n_available == 60_000
+    # tau's standard error at n = 20,000 is about 0.004 here; 0.02 is five of them.
+    assert abs(ours.r - full) < 0.02
+
+
+def test_rank_average_matches_scipy_rankdata():
+    values = np.array([3.0, 1.0, 3.0, 2.0, 3.0, 1.0])
+    assert rank_average(values).tolist() == stats.rankdata(values).tolist()
+
+
+@pytest.mark.parametrize("name", ["I", "II", "III", "IV"])
+def test_anscombe_quartet_all_have_r_about_0816(name):
+    # Anscombe (1973): every set has correlation 0.816 (three decimals from memory; the paper
+    # prints 0.82).
+    x, y = ANSCOMBE[name]
+    result = pearson(x, y)
+    assert result.r == pytest.approx(0.816, abs=0.0006)
+    assert result.r == pytest.approx(stats.pearsonr(x, y).statistic, abs=1e-12)
+
+
+def test_undefined_cases_give_none_with_reason_never_nan():
+    for fn in (pearson, spearman, kendall):
+        short = fn([1.0, 2.0], [3.0, 1.0])
+        assert short.r is None and short.p is None and "fewer than 3" in short.reason
+        flat = fn([1.0, 2.0, 3.0, 4.0], [5.0, 5.0, 5.0, 5.0])
+        assert flat.r is None and flat.reason == "y has no variation"
+    three = pearson([1.0, 2.0, 3.0], [1.0, 3.0, 2.0])
+    assert three.r == pytest.approx(0.5) and three.ci_low is None and "4 pairs" in three.reason
+
+
+def test_tables_match_scipy_pair_by_pair_in_every_scope():
+    rng = np.random.default_rng(21)
+    n = 400
+    data = rng.normal(size=(n, 4))
+    data[:, 1] += data[:, 0]
+    data[:, 3] = np.round(data[:, 3], 1)
+    data[rng.choice(n, 30, replace=False), 2] = np.nan  # pairs with their own complete rows
+    codes = rng.integers(0, 3, size=n)
+    tables = correlation_tables(data, codes, 3, rng=np.random.default_rng(0))
+    assert len(tables) == 4 * 3
+    refs = {
+        "pearson": lambda a, b: stats.pearsonr(a, b),
+        "spearman": lambda a, b: stats.spearmanr(a, b),
+        "kendall": lambda a, b: stats.kendalltau(a, b),
+    }
+    for table in tables:
+        rows = np.ones(n, bool) if table.group is None else codes == table.group
+        for i, j, c in table.pairs:
+            a, b = _complete(data[rows, i], data[rows, j])
+            ref = refs[table.method](a, b)  # reference library: scipy.stats
+            assert c.n == a.size
+            assert c.r == pytest.approx(ref.statistic, abs=1e-10), (table.method, i, j)
+            assert c.p == pytest.approx(ref.pvalue, rel=1e-7, abs=1e-300)
+
+
+def test_tables_flag_constant_columns_and_tiny_groups():
+    data = np.array(
+        [[1.0, 2.0, 7.0], [2.0, 1.0, 7.0], [3.0, 5.0, 7.0], [4.0, 3.0, 7.0], [5.0, 4.0, 7.0]]
+    )
+    codes = np.array([0, 0, 0, 0, 1])
+    tables = correlation_tables(data, codes, 2, rng=np.random.default_rng(0))
+    for table in tables:
+        for i, j, c in table.pairs:
+            if c.r is None:
+                assert c.reason
+            else:
+                assert math.isfinite(c.r)
+            if j == 2:
+                assert c.r is None
+        if table.group == 1:
+            assert all(c.r is None and "fewer than 3" in c.reason for _, _, c in table.pairs)
