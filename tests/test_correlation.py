@@ -58,8 +58,8 @@ def test_pearson_matches_scipy_pearsonr_and_its_fisher_interval():
 
 
 def test_fisher_interval_matches_textbook_formula():
-    # Direct formula: Fisher (1921); e.g. Zar, Biostatistical Analysis (5th ed., 2010), eq. 19.18
-    # (from memory): z = atanh r, z -/+ 1.96 / sqrt(n - 3), back-transformed with tanh.
+    # Direct formula of Fisher (1921), Metron 1, as given in Zar, Biostatistical Analysis
+    # (chapter on correlation; from memory): z = atanh r, z -/+ z_0.975 / sqrt(n - 3), then tanh.
     x, y = _data(seed=11, n=40)
     ours = pearson(x, y)
     n = ours.n
@@ -161,7 +161,7 @@ def test_tables_flag_constant_columns_and_tiny_groups():
     codes = np.array([0, 0, 0, 0, 1])
     tables = correlation_tables(data, codes, 2, rng=np.random.default_rng(0))
     for table in tables:
-        for i, j, c in table.pairs:
+        for _i, j, c in table.pairs:
             if c.r is None:
                 assert c.reason
             else:

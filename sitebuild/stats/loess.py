@@ -68,6 +68,9 @@ class _Bins:
     count: np.ndarray  # (B,) points per bin, for the nearest-neighbour span
     index: np.ndarray | None  # bin of each point (None on the exact path: point i is bin i)
     offset: np.ndarray | None  # x_i - centre of its bin
+    lo: float = 0.0  # left edge of the first equal-width bin (binned path)
+    width: float = 0.0  # bin width
+    cumulative: np.ndarray | None = None  # points left of each raw bin edge (bins + 1)
 
 
 @dataclass(frozen=True)
@@ -105,7 +108,8 @@ def _make_bins(x: np.ndarray, exact: bool, bins: int) -> _Bins:
     remap = np.cumsum(used) - 1
     index = remap[raw]
     centre = total[used] / count[used]
-    return _Bins(centre, count[used], index, x - centre[index])
+    cumulative = np.concatenate(([0], np.cumsum(count)))
+    return _Bins(centre, count[used], index, x - centre[index], lo, (hi - lo) / bins, cumulative)
 
 
 def _moments(bins: _Bins, y: np.ndarray, w: np.ndarray | None, degree: int) -> _Moments:
@@ -145,14 +149,23 @@ def _radius(bins: _Bins, at: np.ndarray, q: int) -> np.ndarray:
             part = np.abs(c[None, :] - at[start : start + step, None])
             out[start : start + step] = np.partition(part, q - 1, axis=1)[:, q - 1]
         return out
-    # Binned: bisection on d for count(|c - z| <= d) >= q, counts from cumulative sums.
-    cum = np.concatenate(([0], np.cumsum(bins.count)))
+    # Binned: bisection on d for F(z + d) - F(z - d) = q - 1/2, with F the count of points
+    # left of t, linear inside each bin (points spread evenly over their bin); the half
+    # puts the q-th point in the middle of its share.
+    cum = bins.cumulative
+    total_bins = cum.size - 1
+
+    def below(t: np.ndarray) -> np.ndarray:
+        where = (t - bins.lo) / bins.width
+        b = np.clip(np.floor(where), 0, total_bins - 1).astype(np.int64)
+        share = np.clip(where - b, 0.0, 1.0)
+        return cum[b] + (cum[b + 1] - cum[b]) * share
+
     low = np.zeros(at.size)
-    high = np.maximum(np.abs(at - c[0]), np.abs(c[-1] - at))
+    high = np.maximum(np.abs(at - c[0]), np.abs(c[-1] - at)) + bins.width
     for _ in range(60):
         mid = 0.5 * (low + high)
-        inside = cum[np.searchsorted(c, at + mid, "right")] - cum[np.searchsorted(c, at - mid)]
-        enough = inside >= q
+        enough = below(at + mid) - below(at - mid) >= q - 0.5
         high = np.where(enough, mid, high)
         low = np.where(enough, low, mid)
     return high
