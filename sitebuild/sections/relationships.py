@@ -244,7 +244,12 @@ def _sample(codes: np.ndarray, n_groups: int, limit: int, rng) -> np.ndarray:
     # Every group gets at least a fair share floor so small groups stay visible.
     floor = np.minimum(sizes, limit // max(2 * n_groups, 1))
     rest = limit - int(floor.sum())
-    extra = np.floor((sizes - floor) * rest / max(int((sizes - floor).sum()), 1)).astype(int)
+    room = sizes - floor
+    share = room * rest / max(int(room.sum()), 1)
+    extra = np.floor(share).astype(np.int64)
+    # Largest remainders take the rows left over by rounding down, so the total is the limit.
+    left = rest - int(extra.sum())
+    extra[np.argsort(-(share - extra), kind="stable")[:left]] += 1
     quota = np.minimum(sizes, floor + extra)
     picks = [
         order[bounds[g] + np.sort(rng.choice(sizes[g], size=int(quota[g]), replace=False))]
