@@ -21,9 +21,14 @@ def core(results: dict) -> dict:
     return {k: results[k] for k in CORE_KEYS if k in results}
 
 
+def results_digest(results: dict) -> str:
+    """Return the SHA-256 (hex) of the computed numbers of a results tree."""
+    return hashlib.sha256(canonical(core(results)).encode("utf-8")).hexdigest()
+
+
 def results_id(results: dict) -> str:
-    """Return a short SHA-256 identifying the computed numbers of a results tree."""
-    return hashlib.sha256(canonical(core(results)).encode("utf-8")).hexdigest()[:16]
+    """Return a short identifier of the computed numbers of a results tree (for readers)."""
+    return results_digest(results)[:16]
 
 
 def _by(items, *keys) -> dict:

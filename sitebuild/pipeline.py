@@ -248,13 +248,19 @@ def previous_results(target: Path) -> tuple[dict | None, str | None]:
     return data, None
 
 
-def render_key(results: dict, manifest: Manifest) -> str:
-    """Return a SHA-256 of everything a render reads: equal keys give equal site bytes."""
+def render_key(computed_id: str, changes: dict, history: list, manifest: Manifest) -> str:
+    """Return a SHA-256 of everything a render reads: equal keys give equal site bytes.
+
+    ``computed_id`` identifies the computed numbers (see :func:`changes.results_id`);
+    ``changes`` and ``history`` complete the results tree the pages show.
+    """
     from .site.render import build_time, layout_files
 
     digest = hashlib.sha256()
     parts = {
-        "results": hashlib.sha256(canonical(results).encode("utf-8")).hexdigest(),
+        "results": computed_id,
+        "changes": changes,
+        "history": history,
         "site": dataclasses.asdict(manifest.site),
         "version": __version__,
         "code": code_fingerprint(),
@@ -318,7 +324,7 @@ def build(
     as one HTML file at those paths; ``progress`` is True (lines to stderr) or a function
     taking one line of text; ``quiet`` silences progress.
     """
-    from .changes import compare, core, extend_history, results_id
+    from .changes import compare, core, extend_history, results_digest
     from .site import publish
     from .site.render import build_time
 
@@ -378,7 +384,8 @@ def build(
         previous, notice = previous_results(target)
         if notice:
             notices.append(notice)
-        numbers_changed = previous is None or results_id(previous) != results_id(computed)
+        computed_id = results_digest(computed)
+        numbers_changed = previous is None or results_digest(previous) != computed_id
         if not numbers_changed and "changes" in previous and "history" in previous:
             # Nothing computed moved: the site keeps saying what moved at the last real change.
             changes, history = previous["changes"], previous["history"]
@@ -392,7 +399,7 @@ def build(
             report_changes = ("No number changed since the last build.",)
 
         with timer.stage("render"):
-            site_key = render_key(results, manifest)
+            site_key = render_key(computed_id, changes, history, manifest)
             record_key = hashlib.sha256(str(target).encode("utf-8")).hexdigest()
             record = cache.load("sites", record_key)
             files = None

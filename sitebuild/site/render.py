@@ -15,7 +15,6 @@ from pathlib import Path
 
 from .. import __version__
 from ..manifest import Manifest
-from ..results import dumps, schema
 
 ASSET_BUNDLE = "assets/vega-bundle.js"
 MARKER = ".sitebuild-site"
@@ -259,6 +258,8 @@ def render_site(
     ``bundle`` is the chart script (Vega, Vega-Lite, vega-embed); made by vl-convert when
     not given.
     """
+    from ..results import dumps, schema  # numpy comes with it: keep it off the no-op path
+
     env = environment(manifest.root / "layouts")
     files: dict[str, bytes] = {}
     common = common_context(results, manifest)

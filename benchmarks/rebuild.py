@@ -1,0 +1,165 @@
+"""Rebuild benchmark: cold build, no-op rebuild and one-dataset-changed rebuild.
+
+Run from the repository root::
+
+    PYTHONPATH=. python benchmarks/rebuild.py              # example project and the 1M case
+    PYTHONPATH=. python benchmarks/rebuild.py --case example
+
+Each build is the real CLI in a child process (imports included), timed from outside. The
+example project is copied to benchmarks/out/ first; the 1M-row project is generated, seeded,
+into benchmarks/data/ (both folders are git-ignored). "Cold" means no cache and no site.
+"""
+
+from __future__ import annotations
+
+import argparse
+import shutil
+import subprocess
+import sys
+import time
+from pathlib import Path
+
+import numpy as np
+
+HERE = Path(__file__).resolve().parent
+ROOT = HERE.parent
+DATA = HERE / "data"
+OUT = HERE / "out"
+SEED = 20260714
+GROUPS = 8
+ROWS = 1_000_000
+
+MANIFEST_1M = """\
+[site]
+title = "Rebuild benchmark: one million rows"
+seed = {seed}
+
+[[datasets]]
+name = "Sensor lines"
+file = "data/lines.csv"
+group = "line"
+measures = ["m1", "m2", "m3", "m4"]
+x = "x"
+
+[[datasets]]
+name = "Spot checks"
+file = "data/checks.csv"
+group = "line"
+measures = ["m1", "m2"]
+"""
+
+
+def write_table(path: Path, rng: np.random.Generator, rows: int) -> None:
+    """Write a seeded table: 8 groups, 4 measures of different shapes, one x."""
+    import pandas as pd
+
+    line = rng.integers(0, GROUPS, rows)
+    x = rng.uniform(0, 10, rows)
+    frame = pd.DataFrame(
+        {
+            "line": np.array([f"line {i + 1}" for i in range(GROUPS)])[line],
+            "x": x.round(4),
+            "m1": (50 + line + 0.8 * x + rng.normal(0, 3, rows)).round(4),
+            "m2": rng.lognormal(1 + 0.05 * line, 0.4, rows).round(4),
+            "m3": (np.sin(x) * 4 + rng.standard_t(5, rows)).round(4),
+            "m4": rng.gamma(2 + 0.1 * line, 1.5, rows).round(4),
+        }
+    )
+    path.parent.mkdir(parents=True, exist_ok=True)
+    frame.to_csv(path, index=False)
+
+
+def make_1m() -> Path:
+    """Return the 1M-row project folder, generating it on first use."""
+    root = DATA / "rebuild_1m"
+    if not (root / "data" / "lines.csv").is_file():
+        rng = np.random.default_rng(SEED)
+        write_table(root / "data" / "lines.csv", rng, ROWS)
+        write_table(root / "data" / "checks.csv", rng, 400)
+        (root / "manifest.toml").write_text(MANIFEST_1M.format(seed=SEED), encoding="utf-8")
+    return root
+
+
+def copy_example() -> Path:
+    """Return a fresh copy of the example project (without site or cache)."""
+    root = OUT / "rebuild_example"
+    shutil.rmtree(root, ignore_errors=True)
+    shutil.copytree(
+        ROOT / "example_project",
+        root,
+        ignore=shutil.ignore_patterns("site_output", ".sitebuild_cache"),
+    )
+    return root
+
+
+def timed_build(project: Path, out: Path) -> tuple[float, str]:
+    started = time.perf_counter()
+    run = subprocess.run(
+        [sys.executable, "-m", "sitebuild", "build", str(project), "--out", str(out), "--quiet"],
+        capture_output=True,
+        text=True,
+        cwd=ROOT,
+    )
+    elapsed = time.perf_counter() - started
+    if run.returncode != 0:
+        raise SystemExit(f"build failed: {run.stderr.strip()}")
+    return elapsed, run.stdout.strip()
+
+
+def append_last_row(path: Path) -> None:
+    """Change a data file by repeating its last line (one more row)."""
+    lines = path.read_bytes().splitlines(keepends=True)
+    with open(path, "ab") as handle:
+        handle.write(lines[-1] if lines[-1].endswith(b"\n") else b"\n" + lines[-1])
+
+
+def bench(name: str, project: Path, small: Path, big: Path | None) -> list[tuple[str, float]]:
+    out = OUT / f"rebuild_{name}_site"
+    shutil.rmtree(out, ignore_errors=True)
+    shutil.rmtree(project / ".sitebuild_cache", ignore_errors=True)
+    figures = []
+    cold, _ = timed_build(project, out)
+    figures.append(("cold build (no cache, no site)", cold))
+    noop, said = timed_build(project, out)
+    assert said.startswith("Nothing changed"), said
+    figures.append(("no-op rebuild", noop))
+    append_last_row(small)
+    one, _ = timed_build(project, out)
+    figures.append((f"one dataset changed ({small.name})", one))
+    if big is not None:
+        append_last_row(big)
+        changed, _ = timed_build(project, out)
+        figures.append((f"the big dataset changed ({big.name})", changed))
+    return figures
+
+
+def main(argv: list[str] | None = None) -> int:
+    parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    parser.add_argument("--case", nargs="+", choices=("example", "1m"), default=["example", "1m"])
+    args = parser.parse_args(argv)
+    for case in args.case:
+        if case == "example":
+            project = copy_example()
+            figures = bench(case, project, project / "data" / "germination.tsv", None)
+        else:
+            started = time.perf_counter()
+            project = make_1m()
+            print(f"1M-row project ready in {time.perf_counter() - started:.1f} s: {project}")
+            # Start each run from the generated bytes, so repeated runs measure the same thing.
+            for name in ("lines.csv", "checks.csv"):
+                backup = project / "data" / f".{name}.orig"
+                if not backup.exists():
+                    shutil.copyfile(project / "data" / name, backup)
+                shutil.copyfile(backup, project / "data" / name)
+            figures = bench(
+                case, project, project / "data" / "checks.csv", project / "data" / "lines.csv"
+            )
+        cold = figures[0][1]
+        print(f"{case}:")
+        for label, seconds in figures:
+            print(f"  {label:<45} {seconds:7.2f} s  ({seconds / cold:5.1%} of cold)")
+    return 0
+
+
+if __name__ == "__main__":
+    sys.exit(main())
