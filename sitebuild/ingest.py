@@ -84,6 +84,9 @@ class Table:
     columns: dict[str, np.ndarray]
     report: IngestReport
     _cache: dict = field(default_factory=dict, repr=False)
+    # Set by the streaming and Dask engines: exact summaries of every row (see
+    # sitebuild.streaming.engine.Streamed), while ``codes``/``columns`` hold a bounded sample.
+    exact: object | None = None
 
     @property
     def n_rows(self) -> int:
@@ -362,8 +365,41 @@ def read_frame(spec: DatasetSpec):
     return frame[needed], encoding, delimiter, warnings
 
 
-def read_table(spec: DatasetSpec) -> Table:
-    """Return the dataset as a :class:`Table`, with an :class:`IngestReport` of what happened."""
+STREAM_BYTES = 1 << 30  # a CSV/TSV or Parquet file larger than this is streamed by default
+
+
+def engine_for(spec: DatasetSpec) -> str:
+    """Return the engine that reads ``spec``: its own, or "stream" for a folder or a big file.
+
+    A folder (Parquet parts) is always streamed; a file over :data:`STREAM_BYTES` is streamed
+    unless the manifest says ``engine = "dask"``.
+    """
+    if spec.engine != "memory":
+        return spec.engine
+    if spec.path.is_dir():
+        return "stream"
+    suffix = spec.path.suffix.lower()
+    if suffix in TEXT_SUFFIXES + PARQUET_SUFFIXES and spec.path.stat().st_size > STREAM_BYTES:
+        return "stream"
+    return "memory"
+
+
+def read_table(spec: DatasetSpec, rng: np.random.Generator | None = None) -> Table:
+    """Return the dataset as a :class:`Table`, with an :class:`IngestReport` of what happened.
+
+    With the "stream" or "dask" engine (see :func:`engine_for`) the Table's rows are a seeded
+    sample of at most a fixed number per group, drawn with ``rng`` (default: seeded from the
+    dataset's name), and ``Table.exact`` holds exact summaries of every row.
+    """
+    engine = engine_for(spec)
+    if engine == "stream":
+        from .streaming.engine import read_streamed
+
+        return read_streamed(spec, rng)
+    if engine == "dask":
+        from .engines.dask import read_with_dask
+
+        return read_with_dask(spec, rng)
     frame, encoding, delimiter, warnings = read_frame(spec)
     rows_read = int(len(frame))
     all_codes, groups = group_codes(frame[spec.group])

@@ -53,10 +53,42 @@ def _counts(sorted_values: np.ndarray, edges: np.ndarray) -> list[int]:
     return [int(c) for c in np.diff(positions)]
 
 
+def computed_from(table: Table) -> dict:
+    """Return the ``computed_from`` block: which engine made the numbers, and what was sampled."""
+    exact = getattr(table, "exact", None)
+    if exact is None:
+        return {
+            "engine": "memory",
+            "rows": table.n_rows,
+            "passes": 1,
+            "sample_rows": None,
+            "sample_per_group": None,
+            "sample_reason": "every row is in memory; nothing is sampled",
+            "note": "All numbers use every row.",
+        }
+    return {
+        "engine": exact.engine,
+        "rows": table.report.rows_used,
+        "passes": exact.passes,
+        "sample_rows": exact.sample_rows,
+        "sample_per_group": exact.sample_per_group,
+        "sample_reason": "the data was read in batches and not kept in memory",
+        "note": (
+            f"Summaries, histograms and box statistics use all {table.report.rows_used:,} rows, "
+            f"read in batches ({exact.passes} passes; quartiles, medians and their intervals "
+            "found exactly by bucketed counting). Scatter points, smooths, rank tests and "
+            f"pairwise tests use a seeded sample of {exact.sample_rows:,} rows (at most "
+            f"{exact.sample_per_group:,} per group)."
+        ),
+    }
+
+
 def compute(table: Table, settings: SiteSettings, rng, partial: dict) -> dict:
     """Return ``summaries`` (every measure × group, plus all groups) and ``distributions``."""
     del rng, partial  # summaries are deterministic and need nothing computed before them
     level = settings.confidence
+    if getattr(table, "exact", None) is not None:
+        return _compute_streamed(table, level)
     summaries: list[dict] = []
     distributions: list[dict] = []
     n_groups = len(table.groups)
@@ -76,17 +108,7 @@ def compute(table: Table, settings: SiteSettings, rng, partial: dict) -> dict:
                 high_start = int(np.searchsorted(chunk, summary.whisker_high, side="right"))
                 outliers_high = chunk[max(high_start, len(chunk) - MAX_OUTLIER_POINTS) :].tolist()
             per_group.append(
-                {
-                    "group": group,
-                    "counts": _counts(chunk, edges),
-                    "q1": summary.q1,
-                    "median": summary.median,
-                    "q3": summary.q3,
-                    "whisker_low": summary.whisker_low,
-                    "whisker_high": summary.whisker_high,
-                    "outlier_points": outliers_low + outliers_high,
-                    "outliers_total": summary.outliers,
-                }
+                _box(group, _counts(chunk, edges), summary, outliers_low + outliers_high)
             )
         overall = describe_sorted(everything, level, missing=int(missing.sum()))
         summaries.append(_row(None, measure, overall))
@@ -98,12 +120,56 @@ def compute(table: Table, settings: SiteSettings, rng, partial: dict) -> dict:
                 "groups": per_group,
             }
         )
+    return _keys(table, summaries, distributions)
+
+
+def _box(group: str, counts: list[int], summary: Summary, points: list[float]) -> dict:
+    return {
+        "group": group,
+        "counts": counts,
+        "q1": summary.q1,
+        "median": summary.median,
+        "q3": summary.q3,
+        "whisker_low": summary.whisker_low,
+        "whisker_high": summary.whisker_high,
+        "outlier_points": points,
+        "outliers_total": summary.outliers,
+    }
+
+
+def _keys(table: Table, summaries: list[dict], distributions: list[dict]) -> dict:
     return {
         "summaries": summaries,
         "distributions": distributions,
         "normal_reference": {"within_1sd": NORMAL_WITHIN[1], "within_2sd": NORMAL_WITHIN[2]},
         "chebyshev_floor": {"within_1sd": 0.0, "within_2sd": 0.75},
+        "computed_from": computed_from(table),
     }
+
+
+def _compute_streamed(table: Table, level: float) -> dict:
+    """The same keys from the streaming engine's exact pieces (every row, read in batches)."""
+    pieces = table.exact.measures(table.spec.measures, level)
+    summaries: list[dict] = []
+    distributions: list[dict] = []
+    for measure in table.spec.measures:
+        got = pieces[measure]
+        per_group = []
+        for index, group in enumerate(table.groups):
+            summary = got.summaries[index]
+            summaries.append(_row(group, measure, summary))
+            counts = [int(c) for c in got.counts[index]]
+            per_group.append(_box(group, counts, summary, got.outlier_points[index]))
+        summaries.append(_row(None, measure, got.overall))
+        distributions.append(
+            {
+                "measure": measure,
+                "edges": [float(e) for e in got.edges],
+                "all_counts": [int(c) for c in got.counts.sum(axis=0)],
+                "groups": per_group,
+            }
+        )
+    return _keys(table, summaries, distributions)
 
 
 def _shown_groups(ds: dict, measure: str) -> list[str]:

@@ -278,9 +278,29 @@ def histogram_edges(values: np.ndarray, max_bins: int = 40) -> np.ndarray:
     if low == high:
         return np.array([low - 0.5, high + 0.5])
     q1, q3 = np.percentile(finite, [25, 75])
-    width = 2 * (q3 - q1) * finite.size ** (-1 / 3)
+    return histogram_edges_from(finite.size, low, high, float(q1), float(q3), max_bins)
+
+
+def histogram_edges_from(
+    n: int, low: float, high: float, q1: float, q3: float, max_bins: int = 40
+) -> np.ndarray:
+    """Return the edges :func:`histogram_edges` gives, from n, min, max and the quartiles.
+
+    The quartiles are numpy's default (linear) percentiles; a streamed summary that knows
+    only these five numbers gets the same bins as the in-memory one.
+
+    Examples
+    --------
+    >>> histogram_edges_from(1000, 0.0, 10.0, 2.5, 7.5).size  # width 1.0: 10 bins
+    11
+    """
+    if n == 0:
+        return np.array([0.0, 1.0])
+    if low == high:
+        return np.array([low - 0.5, high + 0.5])
+    width = 2 * (q3 - q1) * n ** (-1 / 3)
     bins = int(math.ceil((high - low) / width)) if width > 0 else 0
     if bins <= 0:
-        bins = int(math.ceil(math.log2(finite.size) + 1))
+        bins = int(math.ceil(math.log2(n) + 1))
     bins = max(5, min(max_bins, bins))
     return np.linspace(low, high, bins + 1)

@@ -1,0 +1,309 @@
+"""Read a dataset in record batches with pyarrow, with the same meaning as the in-memory reader.
+
+A source is a CSV/TSV file, a Parquet file or a folder of Parquet files (its parts). Each
+batch becomes group labels (exact text; missing tokens are missing) and float columns (NaN
+where missing or not a number, counted with up to 3 examples), exactly as
+:func:`sitebuild.ingest.read_table` reads them.
+"""
+
+from __future__ import annotations
+
+import csv
+import hashlib
+from collections.abc import Iterator
+from dataclasses import dataclass, field
+from pathlib import Path
+
+import numpy as np
+
+from ..errors import SitebuildError
+from ..ingest import (
+    MISSING_TOKENS,
+    PARQUET_SUFFIXES,
+    TEXT_SUFFIXES,
+    ColumnProblem,
+    _check_columns,
+    _decode_head,
+    _label_text,
+    _to_numbers,
+    file_sha256,
+    sniff_delimiter,
+)
+from ..manifest import DatasetSpec
+
+BATCH_ROWS = 1 << 20  # rows per record batch: bounds the memory of every pass
+CSV_BLOCK_BYTES = 1 << 26  # bytes of CSV text parsed at a time (about a million short rows)
+
+
+@dataclass(frozen=True)
+class Source:
+    """Where a dataset's rows come from and how to read them; small and picklable."""
+
+    kind: str  # "csv" or "parquet"
+    parts: tuple[str, ...]  # file paths; a Parquet folder has one part per file
+    group: str
+    numeric: tuple[str, ...]  # measures, then x (each once)
+    file: str  # as written in the manifest
+    delimiter: str | None = None
+    encoding: str = "utf-8"
+    header: tuple[str, ...] = ()
+    warnings: tuple[str, ...] = field(default=(), compare=False)
+
+    @property
+    def decimal_comma(self) -> bool:
+        return self.delimiter == ";"
+
+
+def parquet_parts(path: Path) -> list[Path]:
+    """Return the Parquet files of a folder (recursively, sorted), skipping hidden files."""
+    parts = [
+        p
+        for p in sorted(path.rglob("*"))
+        if p.is_file()
+        and p.suffix.lower() in PARQUET_SUFFIXES
+        and not any(s.startswith((".", "_")) for s in p.relative_to(path).parts)
+    ]
+    return parts
+
+
+def source_sha256(path: Path) -> str:
+    """Return the SHA-256 of a file, or of a folder's (relative name, file hash) list."""
+    if path.is_file():
+        return file_sha256(path)
+    digest = hashlib.sha256()
+    for part in parquet_parts(path):
+        digest.update(f"{part.relative_to(path).as_posix()}\0{file_sha256(part)}\n".encode())
+    return digest.hexdigest()
+
+
+def open_source(spec: DatasetSpec) -> Source:
+    """Return the :class:`Source` of ``spec``, after checking the file and its columns."""
+    import pyarrow.parquet as pq
+
+    path = spec.path
+    numeric = tuple(dict.fromkeys([*spec.measures, *([spec.x] if spec.x else [])]))
+    if path.is_dir():
+        parts = parquet_parts(path)
+        if not parts:
+            raise SitebuildError(
+                f"{spec.file}: the folder holds no .parquet files; a folder dataset must be "
+                "Parquet parts of one table."
+            )
+        kind = "parquet"
+    else:
+        parts = [path]
+        suffix = path.suffix.lower()
+        if path.stat().st_size == 0:
+            raise SitebuildError(
+                f"{spec.file}: the file is empty; export the data again with a header row."
+            )
+        if suffix in PARQUET_SUFFIXES:
+            kind = "parquet"
+        elif suffix in TEXT_SUFFIXES:
+            kind = "csv"
+        else:
+            raise SitebuildError(
+                f"{spec.file}: files ending '{suffix}' cannot be streamed; use .csv, .tsv, .txt "
+                "or Parquet (a file or a folder of parts)."
+            )
+    if kind == "parquet":
+        for part in parts:
+            try:
+                names = list(pq.read_schema(part).names)
+            except Exception as exc:  # pyarrow raises several types for a bad file
+                raise SitebuildError(
+                    f"{spec.file}: {part.name} is not a readable Parquet file ({exc}); export it again."
+                ) from None
+            _check_columns(spec, names)
+        return Source(
+            kind="parquet",
+            parts=tuple(str(p) for p in parts),
+            group=spec.group,
+            numeric=numeric,
+            file=spec.file,
+            encoding="parquet",
+        )
+    with open(path, "rb") as handle:
+        head_bytes = handle.read(65536)
+    encoding, head, warnings = _decode_head(path, head_bytes)
+    delimiter = sniff_delimiter(head, path.suffix.lower())
+    first = head.splitlines()[0] if head.splitlines() else ""
+    header = next(csv.reader([first], delimiter=delimiter), [])
+    if not any(h.strip() for h in header):
+        raise SitebuildError(
+            f"{spec.file}: the first line is empty; the first line must name the columns."
+        )
+    _check_columns(spec, header)
+    return Source(
+        kind="csv",
+        parts=(str(path),),
+        group=spec.group,
+        numeric=numeric,
+        file=spec.file,
+        delimiter=delimiter,
+        encoding=encoding,
+        header=tuple(header),
+        warnings=tuple(warnings),
+    )
+
+
+@dataclass
+class Batch:
+    """One batch of rows as read: raw group values and float columns (NaN = missing)."""
+
+    labels: list[str | None]  # label text per distinct group value in this batch
+    label_index: np.ndarray  # int32 per row into ``labels``; -1 where the value is null
+    columns: dict[str, np.ndarray]
+    problems: dict[str, ColumnProblem]
+    first_row: int  # row number of the batch's first row within its part
+
+    @property
+    def rows(self) -> int:
+        return int(self.label_index.shape[0])
+
+
+def _group_batch(array) -> tuple[list[str | None], np.ndarray]:
+    """Return (label per distinct value, index per row) for one batch's group column."""
+    import pyarrow as pa
+    import pyarrow.compute as pc
+
+    if isinstance(array, pa.ChunkedArray):
+        array = array.combine_chunks()
+    if not pa.types.is_dictionary(array.type):
+        array = pc.dictionary_encode(array)
+    index = array.indices.to_numpy(zero_copy_only=False)
+    index = np.where(array.indices.is_null().to_numpy(zero_copy_only=False), -1, index)
+    uniques = array.dictionary.to_pandas()
+    return _label_text(uniques.to_numpy() if uniques.dtype.kind == "f" else uniques), index.astype(
+        np.int32
+    )
+
+
+def _numbers_batch(array, name: str, decimal_comma: bool, text: bool):
+    """Return (float64 values, problem) for one batch's column, as ingest would read it."""
+    import pyarrow as pa
+    import pyarrow.compute as pc
+
+    if isinstance(array, pa.ChunkedArray):
+        array = array.combine_chunks()
+    if not text and (pa.types.is_floating(array.type) or pa.types.is_integer(array.type)):
+        values = pc.cast(array, pa.float64()).to_numpy(zero_copy_only=False)
+        values = np.where(array.is_null().to_numpy(zero_copy_only=False), np.nan, values)
+        bad = np.isinf(values)
+        if not bad.any():
+            return values, None
+        index = np.flatnonzero(bad)
+        values[bad] = np.nan
+        return values, ColumnProblem(
+            count=int(index.size),
+            examples=tuple(str(float(array[int(i)].as_py())) for i in index[:3]),
+        )
+    if pa.types.is_string(array.type) or pa.types.is_large_string(array.type):
+        # Fast path: pyarrow parses plain numbers; anything it rejects goes through the same
+        # pandas conversion as the in-memory reader, so the meaning never differs.
+        try:
+            cleaned = pc.replace_substring(array, ",", ".") if decimal_comma else array
+            values = pc.cast(cleaned, pa.float64()).to_numpy(zero_copy_only=False)
+        except (pa.ArrowInvalid, pa.ArrowNotImplementedError):
+            values = None
+        if values is not None:
+            present = ~array.is_null().to_numpy(zero_copy_only=False)
+            values = np.where(present, values, np.nan)
+            bad = (np.isnan(values) & present) | np.isinf(values)
+            if not bad.any():
+                return values, None
+            index = np.flatnonzero(bad)
+            values[bad] = np.nan
+            return values, ColumnProblem(
+                count=int(index.size),
+                examples=tuple(str(array[int(i)].as_py())[:40] for i in index[:3]),
+            )
+    return _to_numbers(array.to_pandas(), name, decimal_comma)
+
+
+def _short_rows_batch(rows: list[str], source: Source):
+    """Return a pyarrow table of CSV rows that had fewer fields than the header, padded."""
+    import pyarrow as pa
+
+    positions = {name: source.header.index(name) for name in (source.group, *source.numeric)}
+    parsed = [next(csv.reader([text], delimiter=source.delimiter), []) for text in rows]
+    data = {}
+    for name, position in positions.items():
+        values = [r[position] if position < len(r) else None for r in parsed]
+        data[name] = pa.array([None if v in MISSING_TOKENS else v for v in values], pa.string())
+    return pa.table(data)
+
+
+def _csv_tables(source: Source, batch_rows: int) -> Iterator:
+    import pyarrow as pa
+    import pyarrow.csv as pacsv
+
+    names = (source.group, *source.numeric)
+    short: list[str] = []
+    long_rows: list[str] = []
+
+    def invalid(row):
+        if row.actual_columns < row.expected_columns:
+            short.append(row.text)
+            return "skip"
+        long_rows.append(row.text)
+        return "error"
+
+    encoding = "utf8" if source.encoding.startswith("utf-8") else source.encoding
+    reader = pacsv.open_csv(
+        source.parts[0],
+        read_options=pacsv.ReadOptions(encoding=encoding, block_size=CSV_BLOCK_BYTES),
+        parse_options=pacsv.ParseOptions(delimiter=source.delimiter, invalid_row_handler=invalid),
+        convert_options=pacsv.ConvertOptions(
+            include_columns=list(names),
+            column_types={n: pa.string() for n in names},
+            null_values=list(MISSING_TOKENS),
+            strings_can_be_null=True,
+            quoted_strings_can_be_null=True,
+        ),
+    )
+    try:
+        for batch in reader:
+            for start in range(0, batch.num_rows, batch_rows):
+                yield batch.slice(start, batch_rows)
+    except pa.ArrowInvalid as exc:
+        if long_rows:
+            shown = long_rows[0][:60]
+            raise SitebuildError(
+                f"{source.file}: a row has more fields than the header (it starts '{shown}'); fix "
+                "that row or quote fields that contain the delimiter."
+            ) from None
+        if "UTF8" in str(exc) or "utf8" in str(exc).lower():
+            raise UnicodeError(str(exc)) from None
+        raise SitebuildError(f"{source.file}: the file could not be read as CSV ({exc}).") from None
+    if short:
+        yield _short_rows_batch(short, source)
+
+
+def _parquet_tables(path: str, source: Source, batch_rows: int) -> Iterator:
+    import pyarrow.parquet as pq
+
+    handle = pq.ParquetFile(path, read_dictionary=[source.group])
+    yield from handle.iter_batches(batch_size=batch_rows, columns=[source.group, *source.numeric])
+
+
+def batches(source: Source, part: int, batch_rows: int = BATCH_ROWS) -> Iterator[Batch]:
+    """Yield the rows of one part of ``source`` as :class:`Batch` objects, in file order."""
+    if source.kind == "csv":
+        tables = _csv_tables(source, batch_rows)
+    else:
+        tables = _parquet_tables(source.parts[part], source, batch_rows)
+    text = source.kind == "csv"
+    first = 0
+    for table in tables:
+        labels, index = _group_batch(table.column(source.group))
+        columns, problems = {}, {}
+        for name in source.numeric:
+            values, problem = _numbers_batch(
+                table.column(name), name, source.decimal_comma, text=text
+            )
+            columns[name] = values
+            if problem:
+                problems[name] = problem
+        yield Batch(labels, index, columns, problems, first)
+        first += table.num_rows
