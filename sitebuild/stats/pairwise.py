@@ -24,7 +24,9 @@ EXACT_MAX_N = 50
 # The k-th pairwise difference is found by shrinking a bracket until at most this many
 # candidate differences remain, which are then listed and partitioned.
 _ENUMERATE_LIMIT = 1_000_000
-_SAMPLE_SIZE = 65_536
+_SAMPLE_SIZE = 262_144
+# Sample quantiles are taken this many standard errors either side of the target rank.
+_MARGIN_SE = 3.0
 
 
 @dataclass(frozen=True, eq=False)
@@ -77,7 +79,9 @@ class WelchTResult:
     confidence: float
 
 
-def welch_t(x: np.ndarray | Sample, y: np.ndarray | Sample, confidence: float = 0.95) -> WelchTResult:
+def welch_t(
+    x: np.ndarray | Sample, y: np.ndarray | Sample, confidence: float = 0.95
+) -> WelchTResult:
     """Return Welch's t, its Welch–Satterthwaite df, two-sided p and the CI of mean(x) − mean(y).
 
     Notes
@@ -124,8 +128,8 @@ class MannWhitneyResult:
     tie_term: float  # Σ (t³ − t) over tie groups of the pooled sample
 
 
-def _dominance_counts(xs: Sample, ys: Sample) -> tuple[np.ndarray, np.ndarray]:
-    """For each x_i: number of y below it and number of y at or below it."""
+def dominance_counts(xs: Sample, ys: Sample) -> tuple[np.ndarray, np.ndarray]:
+    """Return, for each sorted x_i, the number of y below it and the number at or below it."""
     below = np.searchsorted(ys.sorted, xs.sorted, side="left")
     at_or_below = np.searchsorted(ys.sorted, xs.sorted, side="right")
     return below, at_or_below
@@ -176,12 +180,16 @@ def mwu_exact_cdf(m: int, n: int, upto: int) -> np.ndarray:
 
 
 def mann_whitney_u(
-    x: np.ndarray | Sample, y: np.ndarray | Sample, tie_term: float | None = None
+    x: np.ndarray | Sample,
+    y: np.ndarray | Sample,
+    tie_term: float | None = None,
+    dominance: tuple[np.ndarray, np.ndarray] | None = None,
 ) -> MannWhitneyResult:
     """Return U of x, its two-sided p-value and the method used (exact or normal).
 
     ``tie_term`` (optional) is Σ(t³ − t) over tie groups of the pooled pair, when the caller
-    has it already; otherwise it is computed here.
+    has it already; otherwise it is computed here. ``dominance`` (optional) is the pair
+    (#{y < x_i}, #{y ≤ x_i}) per sorted x_i, shared with :func:`cliffs_delta`.
 
     Notes
     -----
@@ -203,7 +211,7 @@ def mann_whitney_u(
     xs, ys = Sample.of(x), Sample.of(y)
     if xs.n < 1 or ys.n < 1:
         raise ValueError("each group needs at least one value")
-    below, at_or_below = _dominance_counts(xs, ys)
+    below, at_or_below = dominance if dominance is not None else dominance_counts(xs, ys)
     ties_between = bool(np.any(at_or_below > below))
     u = float(np.sum(below) + 0.5 * np.sum(at_or_below - below))
     if tie_term is None:
@@ -270,18 +278,21 @@ def _shrink(
     a: np.ndarray,
     b: np.ndarray,
     below: int,
-    vals: np.ndarray,
+    raw: np.ndarray,
     total: int,
 ) -> tuple[np.ndarray, np.ndarray, int, float | None]:
-    """One round: new row bounds from sample quantiles ``vals`` around ranks k_lo..k_hi.
+    """One round: new row bounds from quantiles of the (unsorted) sample ``raw`` of candidate
+    differences, just outside ranks k_lo..k_hi.
 
     Returns (a, b, below, value) where value is set when every candidate left is one value.
     """
     n = ys.size - 2
-    s = vals.size
+    s = raw.size
     f_lo, f_hi = (k_lo - below) / total, (k_hi - below) / total
-    lo_i = int(math.floor(f_lo * s - 4.0 * math.sqrt(s * f_lo * (1 - f_lo)) - 4))
-    hi_i = int(math.ceil(f_hi * s + 4.0 * math.sqrt(s * f_hi * (1 - f_hi)) + 4))
+    lo_i = int(math.floor(f_lo * s - _MARGIN_SE * math.sqrt(s * f_lo * (1 - f_lo)) - 3))
+    hi_i = int(math.ceil(f_hi * s + _MARGIN_SE * math.sqrt(s * f_hi * (1 - f_hi)) + 3))
+    wanted = [i for i in (lo_i, hi_i) if 0 <= i < s]
+    vals = np.partition(raw, wanted) if wanted else raw
     lo = hi = None
     if lo_i >= 0:
         lo = float(vals[lo_i])
@@ -328,19 +339,23 @@ def _select(
             part = np.partition(values, picks)
             return [float(part[i]) for i in picks]
         cum = np.cumsum(counts)
-        pos = rng.integers(0, total, size=s)
+        # Systematic sample with a random start: positions come out sorted, which makes the
+        # row lookup a fast merge, and every stretch of candidates is evenly represented.
+        step = total / s
+        pos = np.minimum((rng.random() + np.arange(s)) * step, total - 1).astype(np.int64)
         row = np.searchsorted(cum, pos, side="right")
         col = a[row] + (pos - (cum[row] - counts[row])) + 1
-        vals = np.sort(xs[row] - ys[col])
+        raw = xs[row] - ys[col]
         centre = (0.5 * (k_lo + k_hi) - below) / total
-        a, b, below, same = _shrink(xs, ys, k_lo, k_hi, a, b, below, vals, total)
+        a, b, below, same = _shrink(xs, ys, k_lo, k_hi, a, b, below, raw, total)
         if same is not None:
             return [same] * len(ks)  # every candidate left is this one value
         if int((b - a).sum()) > 0.5 * total:
             # Poor progress means heavy ties (few distinct values in the bracket). Test the
             # sample value at the target rank itself: it is the answer, or every candidate
             # on one side of it (including it) leaves the bracket.
-            pivot = float(vals[min(s - 1, max(0, int(centre * s)))])
+            at = min(s - 1, max(0, int(centre * s)))
+            pivot = float(np.partition(raw, at)[at])
             n_all = (ys.size - 2) * xs.size
             lt = _first_at_most(xs, ys, pivot, strict=True)
             le = _first_at_most(xs, ys, pivot, strict=False)
@@ -396,25 +411,27 @@ def kth_pairwise_differences(
     gen = rng if rng is not None else np.random.default_rng(0)
     a = np.zeros(m, dtype=np.int64)
     b = np.full(m, n, dtype=np.int64)
-    below = 0
     total = m * n
-    if total > _ENUMERATE_LIMIT:
-        # One shared first round: the ks are usually an estimate and its interval bounds,
-        # close together on the scale of m·n, so one bracket covers them all.
-        s = _SAMPLE_SIZE
-        vals = np.sort(xs[gen.integers(0, m, size=s)] - ys[gen.integers(0, n, size=s) + 1])
-        a, b, below, same = _shrink(xs, ys, min(ks), max(ks), a, b, below, vals, total)
-        if same is not None:
-            return [same] * len(ks)
     clusters: list[list[int]] = []
     for k in sorted(set(ks)):
         if clusters and k - clusters[-1][0] < _ENUMERATE_LIMIT // 2:
             clusters[-1].append(k)
         else:
             clusters.append([k])
+    raw = None
+    if total > _ENUMERATE_LIMIT:
+        # One shared first sample of random pairs brackets every cluster of ranks.
+        s = _SAMPLE_SIZE
+        raw = xs[gen.integers(0, m, size=s)] - ys[gen.integers(0, n, size=s) + 1]
     found: dict[int, float] = {}
     for group in clusters:
-        found.update(zip(group, _select(xs, ys, group, a, b, below, gen), strict=True))
+        ca, cb, cbelow = a, b, 0
+        if raw is not None:
+            ca, cb, cbelow, same = _shrink(xs, ys, min(group), max(group), a, b, 0, raw, total)
+            if same is not None:
+                found.update((k, same) for k in group)
+                continue
+        found.update(zip(group, _select(xs, ys, group, ca, cb, cbelow, gen), strict=True))
     return [found[k] for k in ks]
 
 
@@ -474,7 +491,7 @@ def hodges_lehmann(
     m, n = xs.n, ys.n
     mn = m * n
     if tie_term is None:
-        below, at_or_below = _dominance_counts(xs, ys)
+        below, at_or_below = dominance_counts(xs, ys)
         tie_term = _tie_term(xs, ys, bool(np.any(at_or_below > below)))
     k = _ci_rank(m, n, confidence, tie_term)
     method = "exact" if tie_term == 0 and max(m, n) <= EXACT_MAX_N else "normal approximation"
@@ -484,7 +501,11 @@ def hodges_lehmann(
     estimate = 0.5 * (values[0] + values[1])
     if k < 1:
         return ShiftEstimate(
-            estimate, None, None, confidence, method,
+            estimate,
+            None,
+            None,
+            confidence,
+            method,
             f"too few values for a {confidence:.0%} interval of the shift",
         )
     return ShiftEstimate(estimate, values[2], values[3], confidence, method)
@@ -506,7 +527,9 @@ class EffectInterval:
     reason: str | None = None
 
 
-def hedges_g(x: np.ndarray | Sample, y: np.ndarray | Sample, confidence: float = 0.95) -> EffectInterval:
+def hedges_g(
+    x: np.ndarray | Sample, y: np.ndarray | Sample, confidence: float = 0.95
+) -> EffectInterval:
     """Return Hedges' g (bias-corrected standardised mean difference) with its large-sample CI.
 
     Notes
@@ -533,7 +556,9 @@ def hedges_g(x: np.ndarray | Sample, y: np.ndarray | Sample, confidence: float =
         return EffectInterval("Hedges' g", None, None, None, confidence, "fewer than 2 values")
     pooled = ((nx - 1) * xs.variance + (ny - 1) * ys.variance) / (nx + ny - 2)
     if not pooled > 0:
-        return EffectInterval("Hedges' g", None, None, None, confidence, "no variation in either group")
+        return EffectInterval(
+            "Hedges' g", None, None, None, confidence, "no variation in either group"
+        )
     d = (xs.mean - ys.mean) / math.sqrt(pooled)
     j = 1 - 3 / (4 * (nx + ny) - 9)
     g = j * d
@@ -542,8 +567,15 @@ def hedges_g(x: np.ndarray | Sample, y: np.ndarray | Sample, confidence: float =
     return EffectInterval("Hedges' g", g, g - z * se, g + z * se, confidence)
 
 
-def cliffs_delta(x: np.ndarray | Sample, y: np.ndarray | Sample, confidence: float = 0.95) -> EffectInterval:
+def cliffs_delta(
+    x: np.ndarray | Sample,
+    y: np.ndarray | Sample,
+    confidence: float = 0.95,
+    dominance: tuple[np.ndarray, np.ndarray] | None = None,
+) -> EffectInterval:
     """Return Cliff's delta, P(X > Y) − P(X < Y), with Cliff's asymmetric confidence interval.
+
+    ``dominance`` (optional) is as in :func:`mann_whitney_u`.
 
     Notes
     -----
@@ -567,7 +599,7 @@ def cliffs_delta(x: np.ndarray | Sample, y: np.ndarray | Sample, confidence: flo
     m, n = xs.n, ys.n
     if m < 2 or n < 2:
         return EffectInterval("Cliff's delta", None, None, None, confidence, "fewer than 2 values")
-    below, at_or_below = _dominance_counts(xs, ys)
+    below, at_or_below = dominance if dominance is not None else dominance_counts(xs, ys)
     row = (below - (n - at_or_below)) / n  # d_i·
     x_below = np.searchsorted(xs.sorted, ys.sorted, side="left")
     x_at_or_below = np.searchsorted(xs.sorted, ys.sorted, side="right")
@@ -577,7 +609,11 @@ def cliffs_delta(x: np.ndarray | Sample, y: np.ndarray | Sample, confidence: flo
     nonzero = float(np.sum(below) + np.sum(n - at_or_below))  # Σ d_ij² (ties give 0)
     if abs(delta) >= 1.0:
         return EffectInterval(
-            "Cliff's delta", delta, None, None, confidence,
+            "Cliff's delta",
+            delta,
+            None,
+            None,
+            confidence,
             "complete separation: every value of one group is above every value of the other",
         )
     s2 = (
@@ -802,7 +838,10 @@ def tukey_hsd(groups: Sequence[np.ndarray | Sample]) -> list[FamilyPair]:
         ]
     )
     p = np.clip(stats.studentized_range.sf(q, k, df), 0.0, 1.0)
-    return [FamilyPair(i, j, float(qq), float(df), float(pp)) for (i, j), qq, pp in zip(pairs, q, p, strict=True)]
+    return [
+        FamilyPair(i, j, float(qq), float(df), float(pp))
+        for (i, j), qq, pp in zip(pairs, q, p, strict=True)
+    ]
 
 
 def games_howell(groups: Sequence[np.ndarray | Sample]) -> list[FamilyPair]:
@@ -859,7 +898,9 @@ def dunnett(
     """
     samples = [Sample.of(g) for g in groups]
     others = [i for i in range(len(samples)) if i != reference]
-    res = stats.dunnett(*[samples[i].sorted for i in others], control=samples[reference].sorted, rng=rng)
+    res = stats.dunnett(
+        *[samples[i].sorted for i in others], control=samples[reference].sorted, rng=rng
+    )
     df = sum(s.n for s in samples) - len(samples)
     return [
         FamilyPair(i, reference, float(t), float(df), float(min(1.0, p)))
@@ -879,6 +920,7 @@ __all__ = [
     "WelchTResult",
     "cliffs_delta",
     "detectable_difference",
+    "dominance_counts",
     "dunnett",
     "games_howell",
     "hedges_g",

@@ -1,0 +1,770 @@
+"""Group comparisons for each measure: omnibus tests, pairwise tests with effect sizes and
+intervals, equivalence, letters and plain-language findings (results.json key
+``comparisons``).
+
+How the leading test is chosen (the other tests stay on the page as a sensitivity check):
+
+1. Kruskal–Wallis (ranks) when some group is strongly skewed (|sample skewness| > 1, a common
+   rule of thumb) and the smallest group has fewer than 30 values, so means are not yet
+   steadied by averaging.
+2. Otherwise Welch's ANOVA when the spread differs (Brown–Forsythe p < alpha, or the largest
+   SD is more than twice the smallest, common practice) or group sizes are unbalanced
+   (largest n over 1.5 × the smallest): the equal-variance ANOVA is unreliable then.
+3. Otherwise the one-way ANOVA: spread and sizes are similar, and it is the most powerful.
+
+Pairwise, the leading test follows: Mann–Whitney U with the Hodges–Lehmann shift and Cliff's
+delta after Kruskal–Wallis; Welch's t with the difference in means and Hedges' g otherwise.
+Its p-values are adjusted within the measure's family by the site's ``adjust`` method.
+Tukey's HSD and Games–Howell (all pairs) or Dunnett (each group against the reference) are
+shown beside them; those control the family-wise error themselves.
+
+Pairs are compared only when at most ``MAX_PAIRWISE_GROUPS`` groups can be compared (435
+pairs); with more groups each group is compared with all other rows pooled, so the page
+stays bounded, and the results say so.
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Sequence
+
+import numpy as np
+from scipy import stats
+
+from ..stats import findings as findings_mod
+from ..stats.letters import compact_letters
+from ..stats.multiplicity import METHOD_NAMES, adjust_pvalues
+from ..stats.omnibus import kruskal_wallis, one_way_anova, spread_test, welch_anova
+from ..stats.pairwise import (
+    EXACT_MAX_N,
+    Sample,
+    cliffs_delta,
+    detectable_difference,
+    dominance_counts,
+    dunnett,
+    games_howell,
+    hedges_g,
+    hodges_lehmann,
+    mann_whitney_u,
+    permutation_test,
+    size_label,
+    tost_welch,
+    tukey_hsd,
+    welch_t,
+)
+from . import DataTable
+
+MAX_PAIRWISE_GROUPS = 30
+MAX_DUNNETT_GROUPS = 30
+# A permutation test is run for a pair only when permutations × (n_a + n_b) stays below this
+# many value draws, so an enabled permutation check cannot stall a build.
+PERMUTATION_BUDGET = 50_000_000
+SKEW_LIMIT = 1.0
+SD_RATIO_LIMIT = 2.0
+SIZE_RATIO_LIMIT = 1.5
+SMALL_GROUP = 30
+FEW_ROWS = 10
+
+TEST_ANOVA = "one-way ANOVA"
+TEST_WELCH = "Welch's ANOVA"
+TEST_KW = "Kruskal–Wallis"
+PAIR_WELCH = "Welch's t-test"
+PAIR_MW = "Mann–Whitney U"
+
+
+def _num(value) -> float | None:
+    """A finite float, or None (results.json never holds NaN or Infinity)."""
+    if value is None:
+        return None
+    value = float(value)
+    return value if math.isfinite(value) else None
+
+
+def _skewness(sample: Sample) -> float | None:
+    if sample.n < 3 or not sample.variance > 0:
+        return None
+    return _num(stats.skew(sample.sorted, bias=False))
+
+
+def _group_rows(groups: Sequence[str], samples: Sequence[Sample]) -> list[dict]:
+    rows = []
+    for g, s in zip(groups, samples, strict=True):
+        rows.append(
+            {
+                "group": g,
+                "n": s.n,
+                "mean": _num(s.mean),
+                "sd": _num(s.sd) if s.n > 1 else None,
+                "median": _num(np.median(s.sorted)) if s.n else None,
+                "skewness": _skewness(s),
+            }
+        )
+    return rows
+
+
+class _TieTable:
+    """Counts of globally tied values per group, so a pair's tie term Σ(t³ − t) is cheap."""
+
+    def __init__(self, samples: Sequence[Sample]):
+        pooled = np.concatenate([s.sorted for s in samples])
+        values, counts = np.unique(pooled, return_counts=True)
+        tied = values[counts > 1]
+        self.any = tied.size > 0
+        self.per_group = []
+        if self.any:
+            for s in samples:
+                idx = np.searchsorted(tied, s.sorted)
+                idx = np.minimum(idx, tied.size - 1)
+                hit = tied[idx] == s.sorted
+                self.per_group.append(np.bincount(idx[hit], minlength=tied.size).astype(float))
+
+    def term(self, i: int, j: int) -> float:
+        if not self.any:
+            return 0.0
+        t = self.per_group[i] + self.per_group[j]
+        return float(np.sum(t**3 - t))
+
+
+def _omnibus(samples: list[Sample], ranks: list[np.ndarray]) -> tuple[list[dict], dict]:
+    arrays = [s.sorted for s in samples]
+    anova = one_way_anova(arrays)
+    welch = welch_anova(arrays)
+    kw = kruskal_wallis(arrays, ranks=ranks)
+    spread = spread_test(arrays, center="median")
+    rows = [
+        {
+            "test": TEST_ANOVA,
+            "statistic": _num(anova.statistic),
+            "df1": _num(anova.df1),
+            "df2": _num(anova.df2),
+            "p": _num(anova.pvalue),
+            "effect_name": "omega²",
+            "effect": _num(anova.omega_squared),
+            "effect_label": size_label("omega²", anova.omega_squared),
+            "eta_squared": _num(anova.eta_squared),
+        },
+        {
+            "test": TEST_WELCH,
+            "statistic": _num(welch.statistic),
+            "df1": _num(welch.df1),
+            "df2": _num(welch.df2),
+            "p": _num(welch.pvalue),
+            "effect_name": "omega² (from Welch's F)",
+            "effect": _num(welch.omega_squared),
+            "effect_label": size_label("omega²", welch.omega_squared),
+        },
+        {
+            "test": TEST_KW,
+            "statistic": _num(kw.statistic),
+            "df1": _num(kw.df),
+            "df2": None,
+            "p": _num(kw.pvalue),
+            "effect_name": "epsilon²",
+            "effect": _num(kw.epsilon_squared),
+            "effect_label": size_label("epsilon²", kw.epsilon_squared),
+        },
+    ]
+    spread_row = {
+        "test": "Brown–Forsythe",
+        "statistic": _num(spread.statistic),
+        "df1": _num(spread.df1),
+        "df2": _num(spread.df2),
+        "p": _num(spread.pvalue),
+    }
+    return rows, spread_row
+
+
+def _choose_lead(group_rows: list[dict], spread_row: dict, alpha: float) -> tuple[str, str]:
+    ns = [r["n"] for r in group_rows]
+    sds = [r["sd"] for r in group_rows]
+    skews = [(r["group"], r["skewness"]) for r in group_rows if r["skewness"] is not None]
+    worst = max(skews, key=lambda t: abs(t[1]), default=(None, 0.0))
+    if abs(worst[1]) > SKEW_LIMIT and min(ns) < SMALL_GROUP:
+        return TEST_KW, (
+            f"Kruskal–Wallis leads because group '{worst[0]}' is strongly skewed "
+            f"(skewness {worst[1]:.2f}; beyond ±{SKEW_LIMIT:g} by common practice) and the "
+            f"smallest group has only {min(ns)} values, so averages are not yet reliable; "
+            "a rank test does not depend on the shape."
+        )
+    reasons = []
+    if spread_row["p"] is not None and spread_row["p"] < alpha:
+        reasons.append(
+            f"the Brown–Forsythe test finds unequal spread (p = {_fmt_p(spread_row['p'])})"
+        )
+    ratio = max(sds) / min(sds) if min(sds) > 0 else math.inf
+    if ratio > SD_RATIO_LIMIT:
+        reasons.append(
+            f"the largest standard deviation is {ratio:.1f} times the smallest "
+            f"(more than {SD_RATIO_LIMIT:g} by common practice)"
+        )
+    size_ratio = max(ns) / min(ns)
+    if size_ratio > SIZE_RATIO_LIMIT:
+        reasons.append(f"group sizes are unbalanced ({min(ns)} to {max(ns)} values)")
+    if reasons:
+        return TEST_WELCH, (
+            "Welch's ANOVA leads because "
+            + "; ".join(reasons)
+            + ". It does not assume equal spread."
+        )
+    return TEST_ANOVA, (
+        "The one-way ANOVA leads: the groups have similar spread (Brown–Forsythe "
+        f"p = {_fmt_p(spread_row['p'])}, largest to smallest SD {ratio:.1f}), similar sizes and "
+        "no strong skew, so the classic test's assumptions look reasonable."
+    )
+
+
+def _fmt_p(p: float | None) -> str:
+    return findings_mod.format_p(p)
+
+
+def _pair_record(
+    a: str,
+    b: str,
+    sa: Sample,
+    sb: Sample,
+    tie: float,
+    settings,
+    margin: float | None,
+    rank_lead: bool,
+    rng: np.random.Generator,
+    perm: tuple[int, np.random.Generator] | None,
+    summary_mode: bool,
+) -> dict:
+    conf = settings.confidence
+    reasons: dict[str, str] = {}
+    wt = welch_t(sa, sb, conf)
+    dom = dominance_counts(sa, sb)
+    mw = mann_whitney_u(sa, sb, tie_term=tie, dominance=dom)
+    g = hedges_g(sa, sb, conf)
+    if summary_mode:
+        # Against all other rows pooled: the interval searches are skipped to keep the cost
+        # linear in the number of groups; the point estimate of Cliff's delta comes from U.
+        hl = None
+        delta_est = _num(2 * mw.statistic / (sa.n * sb.n) - 1)
+        delta = (delta_est, None, None)
+        reasons["hl_shift"] = "not computed when each group is compared with all other rows"
+        reasons["cliffs_delta_ci"] = reasons["hl_shift"]
+    else:
+        hl = hodges_lehmann(sa, sb, conf, rng=rng, tie_term=tie)
+        cd = cliffs_delta(sa, sb, conf, dominance=dom)
+        delta = (_num(cd.estimate), _num(cd.ci_low), _num(cd.ci_high))
+        if cd.reason:
+            reasons["cliffs_delta_ci"] = cd.reason
+        if hl.reason:
+            reasons["hl_ci"] = hl.reason
+    detect = detectable_difference(sa, sb, alpha=settings.alpha, power=0.8)
+    rec: dict = {
+        "a": a,
+        "b": b,
+        "n_a": sa.n,
+        "n_b": sb.n,
+        "welch_t": _num(wt.statistic),
+        "welch_df": _num(wt.df),
+        "welch_p": _num(wt.pvalue),
+        "mean_difference": _num(wt.difference),
+        "mean_ci_low": _num(wt.ci_low),
+        "mean_ci_high": _num(wt.ci_high),
+        "hedges_g": _num(g.estimate),
+        "hedges_g_ci_low": _num(g.ci_low),
+        "hedges_g_ci_high": _num(g.ci_high),
+        "mw_u": _num(mw.statistic),
+        "mw_method": mw.method,
+        "mw_p": _num(mw.pvalue),
+        "hl_shift": _num(hl.estimate) if hl else None,
+        "hl_ci_low": _num(hl.ci_low) if hl else None,
+        "hl_ci_high": _num(hl.ci_high) if hl else None,
+        "cliffs_delta": delta[0],
+        "cliffs_delta_ci_low": delta[1],
+        "cliffs_delta_ci_high": delta[2],
+        "detectable_difference": _num(detect),
+        "margin": margin,
+        "tost_p": None,
+        "permutation_p": None,
+    }
+    if g.reason:
+        reasons["hedges_g"] = g.reason
+    if margin is not None:
+        eq = tost_welch(sa, sb, margin, alpha=settings.alpha)
+        rec["tost_p"] = _num(eq.pvalue)
+    else:
+        reasons["equivalent"] = "no equivalence margin is set for this measure"
+    if perm is None:
+        reasons["permutation_p"] = "no permutation test requested (permutations = 0)"
+    else:
+        count, gen = perm
+        if count * (sa.n + sb.n) <= PERMUTATION_BUDGET:
+            rec["permutation_p"] = _num(permutation_test(sa, sb, count, gen).pvalue)
+        else:
+            reasons["permutation_p"] = (
+                f"groups too large for {count} permutations within the time budget; "
+                "the large-sample tests are reliable at this size"
+            )
+    if rank_lead:
+        rec.update(
+            test=PAIR_MW,
+            statistic=rec["mw_u"],
+            df=None,
+            p=rec["mw_p"],
+            estimate_name="Hodges–Lehmann shift",
+            estimate=rec["hl_shift"],
+            ci_low=rec["hl_ci_low"],
+            ci_high=rec["hl_ci_high"],
+            effect_name="Cliff's delta",
+            effect=delta[0],
+            effect_ci_low=delta[1],
+            effect_ci_high=delta[2],
+        )
+        reasons.setdefault("df", "a rank test has no degrees of freedom")
+        if hl is None:
+            # Without the shift, the summary falls back to the difference in means.
+            rec.update(
+                estimate_name="difference in means",
+                estimate=rec["mean_difference"],
+                ci_low=rec["mean_ci_low"],
+                ci_high=rec["mean_ci_high"],
+            )
+    else:
+        rec.update(
+            test=PAIR_WELCH,
+            statistic=rec["welch_t"],
+            df=rec["welch_df"],
+            p=rec["welch_p"],
+            estimate_name="difference in means",
+            estimate=rec["mean_difference"],
+            ci_low=rec["mean_ci_low"],
+            ci_high=rec["mean_ci_high"],
+            effect_name="Hedges' g",
+            effect=rec["hedges_g"],
+            effect_ci_low=rec["hedges_g_ci_low"],
+            effect_ci_high=rec["hedges_g_ci_high"],
+        )
+    rec["effect_label"] = size_label(rec["effect_name"], rec["effect"])
+    rec["null_reasons"] = reasons
+    return rec
+
+
+def _empty_entry(measure: str, reason: str, excluded: list[dict], group_rows: list[dict]) -> dict:
+    return {
+        "measure": measure,
+        "lead_test": None,
+        "lead_reason": reason,
+        "omnibus": [],
+        "spread_test": None,
+        "pairs": [],
+        "letters": {},
+        "letters_reason": reason,
+        "findings": [],
+        "groups": group_rows,
+        "not_comparable": excluded,
+        "mode": "none",
+        "family": None,
+        "permutation": None,
+        "reason": reason,
+    }
+
+
+def _measure_entry(
+    table, measure: str, settings, rng: np.random.Generator, perm_seed: int | None
+) -> dict:
+    spec = table.spec
+    groups = list(table.groups)
+    arrays = table.by_group(measure)
+    excluded: list[dict] = []
+    keep: list[int] = []
+    samples_all = [Sample.of(v) for v in arrays]
+    for i, s in enumerate(samples_all):
+        if s.n < 2:
+            excluded.append(
+                {"group": groups[i], "n": s.n, "reason": f"fewer than 2 values (n = {s.n})"}
+            )
+        elif not s.variance > 0:
+            excluded.append(
+                {
+                    "group": groups[i],
+                    "n": s.n,
+                    "reason": f"no variation: all {s.n} values are {s.sorted[0]:g}",
+                }
+            )
+        else:
+            keep.append(i)
+    names = [groups[i] for i in keep]
+    samples = [samples_all[i] for i in keep]
+    group_rows = _group_rows(names, samples)
+    if len(keep) < 2:
+        reason = (
+            "fewer than two groups have at least 2 values with some variation, so groups "
+            "cannot be compared for this measure"
+        )
+        entry = _empty_entry(measure, reason, excluded, group_rows)
+        entry["findings"] = findings_mod.measure_findings(entry, settings)
+        return entry
+
+    # Mid-ranks within the pooled sample, once per measure (Kruskal–Wallis reuses them).
+    pooled = np.concatenate([s.sorted for s in samples])
+    all_ranks = stats.rankdata(pooled)
+    bounds = np.cumsum([0] + [s.n for s in samples])
+    ranks = [all_ranks[bounds[i] : bounds[i + 1]] for i in range(len(samples))]
+    omnibus, spread_row = _omnibus(samples, ranks)
+    lead, lead_reason = _choose_lead(group_rows, spread_row, settings.alpha)
+    rank_lead = lead == TEST_KW
+
+    margin = spec.equivalence_margin.get(measure)
+    reference = spec.reference
+    ties = _TieTable(samples)
+    k = len(samples)
+    perm = None
+    if spec.permutations > 0 and perm_seed is not None:
+        perm = (spec.permutations, np.random.default_rng([perm_seed, spec.measures.index(measure)]))
+
+    ref_index = names.index(reference) if reference in names else None
+    pairs_idx: list[tuple[int, int]]
+    summary_mode = False
+    notes: list[str] = []
+    if reference is not None and ref_index is None:
+        why = next((e["reason"] for e in excluded if e["group"] == reference), None)
+        notes.append(
+            f"The reference group '{reference}' "
+            + (f"was left out ({why})" if why else "does not occur in this measure's data")
+            + "; all pairs are compared instead."
+        )
+    if ref_index is not None:
+        mode = "reference"
+        pairs_idx = [(i, ref_index) for i in range(k) if i != ref_index]
+        family_text = f"each of {k - 1} groups against the reference group '{reference}'"
+    elif k <= MAX_PAIRWISE_GROUPS:
+        mode = "all pairs"
+        pairs_idx = [(i, j) for i in range(k) for j in range(i + 1, k)]
+        family_text = f"all {len(pairs_idx)} pairs of {k} groups"
+    else:
+        mode = "each group vs the rest"
+        summary_mode = True
+        pairs_idx = []
+        family_text = (
+            f"each of {k} groups against all other rows pooled (more than "
+            f"{MAX_PAIRWISE_GROUPS} groups: {k * (k - 1) // 2} pairs would be too many to show)"
+        )
+
+    records: list[dict] = []
+    if summary_mode:
+        for i in range(k):
+            rest = np.concatenate([samples[j].sorted for j in range(k) if j != i])
+            rest_s = Sample.of(rest)
+            tie = _pair_tie_vs_rest(samples[i], rest_s)
+            records.append(
+                _pair_record(
+                    names[i],
+                    "all other rows",
+                    samples[i],
+                    rest_s,
+                    tie,
+                    settings,
+                    margin,
+                    rank_lead,
+                    rng,
+                    perm,
+                    True,
+                )
+            )
+    else:
+        for i, j in pairs_idx:
+            records.append(
+                _pair_record(
+                    names[i],
+                    names[j],
+                    samples[i],
+                    samples[j],
+                    ties.term(i, j),
+                    settings,
+                    margin,
+                    rank_lead,
+                    rng,
+                    perm,
+                    False,
+                )
+            )
+
+    # Family tests that control the error rate themselves, beside the adjusted lead test.
+    family_p: dict[tuple[int, int], dict[str, float | None]] = {}
+    if mode == "all pairs":
+        for fp in tukey_hsd(samples):
+            family_p.setdefault((fp.a, fp.b), {})["tukey_p"] = _num(fp.pvalue)
+        for fp in games_howell(samples):
+            family_p.setdefault((fp.a, fp.b), {})["games_howell_p"] = _num(fp.pvalue)
+    dunnett_reason = None
+    if mode == "reference":
+        if k <= MAX_DUNNETT_GROUPS:
+            for fp in dunnett(samples, ref_index, rng):
+                family_p.setdefault((fp.a, fp.b), {})["dunnett_p"] = _num(fp.pvalue)
+        else:
+            dunnett_reason = f"Dunnett's test is computed for at most {MAX_DUNNETT_GROUPS} groups"
+    for rec, key in zip(records, pairs_idx or [None] * len(records), strict=True):
+        got = family_p.get(key, {}) if key is not None else {}
+        for name in ("tukey_p", "games_howell_p", "dunnett_p"):
+            rec[name] = got.get(name)
+            if rec[name] is None:
+                if name == "dunnett_p" and mode == "reference" and dunnett_reason:
+                    why = dunnett_reason
+                elif name == "dunnett_p":
+                    why = "Dunnett's test applies only when a reference group is set"
+                else:
+                    why = "computed only when all pairs are compared"
+                rec["null_reasons"][name] = why
+
+    method = settings.adjust
+    for key, out in (
+        ("p", "p_adjusted"),
+        ("welch_p", "welch_p_adjusted"),
+        ("mw_p", "mw_p_adjusted"),
+        ("tost_p", "tost_p_adjusted"),
+        ("permutation_p", "permutation_p_adjusted"),
+    ):
+        adjusted = adjust_pvalues([r[key] for r in records], method)
+        for r, q in zip(records, adjusted, strict=True):
+            r[out] = _num(q)
+    alpha = settings.alpha
+    for r in records:
+        r["significant"] = bool(r["p_adjusted"] is not None and r["p_adjusted"] < alpha)
+        if margin is None:
+            r["equivalent"] = None
+        else:
+            r["equivalent"] = bool(
+                r["tost_p_adjusted"] is not None and r["tost_p_adjusted"] < alpha
+            )
+        r["conclusion"], r["conclusion_reason"] = _conclusion(r, margin, alpha)
+        _sensitivity_disagreement(r, rank_lead, mode, alpha)
+
+    centre_key = "median" if rank_lead else "mean"
+    by_centre = sorted(group_rows, key=lambda row: -(row[centre_key] or 0.0))
+    if mode == "all pairs":
+        different = [(r["a"], r["b"]) for r in records if r["significant"]]
+        letters = compact_letters([row["group"] for row in by_centre], different)
+        letters_reason = None
+    else:
+        letters = {}
+        letters_reason = "letters need every pair compared; " + (
+            "this measure compares each group with the reference"
+            if mode == "reference"
+            else "there are too many groups to compare every pair"
+        )
+
+    entry = {
+        "measure": measure,
+        "lead_test": lead,
+        "lead_reason": lead_reason,
+        "omnibus": omnibus,
+        "spread_test": spread_row,
+        "pairs": records,
+        "letters": letters,
+        "letters_reason": letters_reason,
+        "findings": [],
+        "groups": group_rows,
+        "centre": centre_key,
+        "not_comparable": excluded,
+        "mode": mode,
+        "pair_test": PAIR_MW if rank_lead else PAIR_WELCH,
+        "family": {
+            "description": family_text,
+            "size": len(records),
+            "adjust": method,
+            "adjust_name": METHOD_NAMES[method],
+        },
+        "margin": margin,
+        "reference": names[ref_index] if ref_index is not None else None,
+        "permutation": (
+            {"seed": perm_seed, "manifest_seed": settings.seed, "count": spec.permutations}
+            if perm is not None
+            else None
+        ),
+        "notes": notes,
+        "alpha": alpha,
+        "confidence": settings.confidence,
+        "exact_max_n": EXACT_MAX_N,
+        "reason": None,
+    }
+    entry["findings"] = findings_mod.measure_findings(entry, settings)
+    return entry
+
+
+def _pair_tie_vs_rest(x: Sample, rest: Sample) -> float:
+    pooled = np.concatenate([x.sorted, rest.sorted])
+    _, counts = np.unique(pooled, return_counts=True)
+    counts = counts[counts > 1].astype(float)
+    return float(np.sum(counts**3 - counts))
+
+
+def _conclusion(r: dict, margin: float | None, alpha: float) -> tuple[str, str]:
+    """differs / equivalent / inconclusive / no clear difference, with a short reason."""
+    if r["significant"]:
+        return "differs", "adjusted p below alpha"
+    if r["equivalent"]:
+        return "equivalent", f"two one-sided tests show the difference lies within ±{margin:g}"
+    few = min(r["n_a"], r["n_b"]) < FEW_ROWS
+    detect = r["detectable_difference"]
+    if margin is not None:
+        why = "too few rows" if few else "too much spread for the number of rows"
+        return "inconclusive", (
+            f"neither a difference nor equivalence within ±{margin:g} could be shown ({why})"
+        )
+    if few:
+        return "inconclusive", "too few rows to detect anything but a large difference"
+    return "no clear difference", (
+        f"not significant; only differences of about {detect:.3g} or more would reliably be "
+        "detected"
+        if detect is not None
+        else "not significant"
+    )
+
+
+def _sensitivity_disagreement(r: dict, rank_lead: bool, mode: str, alpha: float) -> None:
+    """Record which sensitivity tests reach the other verdict at alpha than the lead test."""
+    other = "welch_p_adjusted" if rank_lead else "mw_p_adjusted"
+    checks = {other: r.get(other)}
+    for name in ("tukey_p", "games_howell_p", "dunnett_p", "permutation_p_adjusted"):
+        if r.get(name) is not None:
+            checks[name] = r[name]
+    r["disagree"] = sorted(
+        name for name, p in checks.items() if p is not None and (p < alpha) != r["significant"]
+    )
+
+
+def compute(table, settings, rng: np.random.Generator, partial: dict | None = None) -> dict:
+    """Return ``{"comparisons": [...]}``: one entry per measure, in the manifest's order.
+
+    ``partial`` (results already computed for this dataset) is accepted for the section
+    contract; this section computes the few summaries it needs itself (skewness, SDs) so it
+    does not depend on another section's shape.
+    """
+    del partial
+    spec = table.spec
+    perm_seed = int(rng.integers(0, 2**31 - 1)) if spec.permutations > 0 else None
+    entries = [_measure_entry(table, m, settings, rng, perm_seed) for m in spec.measures]
+    return {"comparisons": entries}
+
+
+def charts(dataset: dict, settings) -> list:
+    """Return the forest and p-value matrix charts of every measure (ids cmp-{mi}-...)."""
+    from ..charts import comparisons as chart_mod
+
+    out = []
+    for mi, entry in enumerate(dataset.get("comparisons", [])):
+        out.extend(chart_mod.measure_charts(entry, mi, settings))
+    return out
+
+
+def tables(dataset: dict, settings) -> list[DataTable]:
+    """Return the omnibus, pairs, letters and not-comparable tables (ids cmp-{mi}-...)."""
+    out: list[DataTable] = []
+    for mi, entry in enumerate(dataset.get("comparisons", [])):
+        out.extend(measure_tables(entry, mi))
+    return out
+
+
+OMNIBUS_COLUMNS = (
+    ("test", "Test"),
+    ("statistic", "Statistic"),
+    ("df1", "df 1"),
+    ("df2", "df 2"),
+    ("p", "p"),
+    ("effect_name", "Effect size"),
+    ("effect", "Value"),
+    ("effect_label", "Size (rule of thumb)"),
+)
+PAIR_COLUMNS = (
+    ("a", "Group"),
+    ("b", "Compared with"),
+    ("n_a", "n"),
+    ("n_b", "n (compared)"),
+    ("test", "Test"),
+    ("estimate_name", "Estimate"),
+    ("estimate", "Value"),
+    ("ci_low", "CI low"),
+    ("ci_high", "CI high"),
+    ("p", "p"),
+    ("p_adjusted", "Adjusted p"),
+    ("effect_name", "Effect size"),
+    ("effect", "Effect"),
+    ("effect_ci_low", "Effect CI low"),
+    ("effect_ci_high", "Effect CI high"),
+    ("effect_label", "Size (rule of thumb)"),
+    ("detectable_difference", "Detectable difference (80% power)"),
+    ("tost_p_adjusted", "Equivalence adjusted p"),
+    ("equivalent", "Equivalent"),
+    ("conclusion", "Verdict"),
+    ("welch_p_adjusted", "Welch adjusted p"),
+    ("mw_p_adjusted", "Mann–Whitney adjusted p"),
+    ("tukey_p", "Tukey HSD p"),
+    ("games_howell_p", "Games–Howell p"),
+    ("dunnett_p", "Dunnett p"),
+    ("permutation_p", "Permutation p"),
+    ("permutation_p_adjusted", "Permutation adjusted p"),
+)
+
+
+def measure_tables(entry: dict, mi: int) -> list[DataTable]:
+    """Return the tables of one measure's comparison entry."""
+    measure = entry["measure"]
+    out = []
+    if entry.get("omnibus"):
+        rows = [dict(r) for r in entry["omnibus"]]
+        spread = entry.get("spread_test")
+        if spread:
+            rows.append({**spread, "effect_name": None, "effect": None, "effect_label": None})
+        out.append(
+            DataTable(
+                id=f"cmp-{mi}-omnibus",
+                title=f"Overall tests for {measure}",
+                columns=OMNIBUS_COLUMNS,
+                rows=tuple(rows),
+                caption="The lead test is named above; the others are a sensitivity check. "
+                "Brown–Forsythe tests equal spread, not equal centres.",
+            )
+        )
+    if entry.get("pairs"):
+        family = entry.get("family") or {}
+        out.append(
+            DataTable(
+                id=f"cmp-{mi}-pairs",
+                title=f"Pairwise comparisons for {measure}",
+                columns=PAIR_COLUMNS,
+                rows=tuple({key: r.get(key) for key, _ in PAIR_COLUMNS} for r in entry["pairs"]),
+                caption=f"Family: {family.get('description', '')}; adjusted by "
+                f"{family.get('adjust_name', '')}. Tukey, Games–Howell and Dunnett p-values "
+                "control the family-wise error themselves.",
+            )
+        )
+    if entry.get("letters"):
+        centre = entry.get("centre", "mean")
+        rows = tuple(
+            {
+                "group": g["group"],
+                "n": g["n"],
+                "centre": g[centre],
+                "letters": entry["letters"].get(g["group"], ""),
+            }
+            for g in sorted(entry["groups"], key=lambda g: -(g[centre] or 0.0))
+        )
+        out.append(
+            DataTable(
+                id=f"cmp-{mi}-letters",
+                title=f"Groups that do not differ in {measure}",
+                columns=(
+                    ("group", "Group"),
+                    ("n", "n"),
+                    ("centre", centre.capitalize()),
+                    ("letters", "Letters"),
+                ),
+                rows=rows,
+                caption="Groups sharing a letter were not shown to differ after adjustment "
+                "(compact letter display, Piepho 2004).",
+            )
+        )
+    if entry.get("not_comparable"):
+        out.append(
+            DataTable(
+                id=f"cmp-{mi}-excluded",
+                title=f"Groups left out of the comparisons of {measure}",
+                columns=(("group", "Group"), ("n", "n"), ("reason", "Reason")),
+                rows=tuple(dict(r) for r in entry["not_comparable"]),
+            )
+        )
+    return out

@@ -1,0 +1,249 @@
+"""Plain-language findings for one measure, written from the comparison results only.
+
+Sentences are short and concrete: what was compared, what differs after adjustment and by
+how much, what is equivalent within the stated margin, what could not be settled and why,
+and the cautions every reader of group comparisons needs. Size words for effects are rules
+of thumb (common practice), and the sentences say so.
+"""
+
+from __future__ import annotations
+
+import math
+
+MAX_LISTED = 6
+MAX_UNSURE = 2
+MAX_GROUPS_NAMED = 12
+
+CAUTIONS = (
+    "These data are observational: a difference between groups shows an association, not "
+    "that belonging to a group causes it.",
+    "A result that is not significant does not show that groups are the same; only an "
+    "equivalence check against a stated margin can support that.",
+    "Running many tests raises the chance of a false alarm; the adjusted p-values allow for "
+    "this, at the price of missing some small real differences.",
+    "Results are only as good as the data: check the rows dropped and the values that could "
+    "not be read, listed on this page.",
+    "These figures inform a decision; the decision stays with the people responsible for it.",
+)
+
+
+def format_p(p: float | None) -> str:
+    """Return a p-value as text: '< 0.001' below 0.001, else 3 significant digits.
+
+    Examples
+    --------
+    >>> format_p(0.00002), format_p(0.04321)
+    ('< 0.001', '0.0432')
+    """
+    if p is None or not math.isfinite(p):
+        return "not available"
+    if p < 0.001:
+        return "< 0.001"
+    return f"{p:.3g}"
+
+
+def format_num(x: float | None) -> str:
+    """Return a number with 3 significant digits (no exponent for everyday sizes).
+
+    Examples
+    --------
+    >>> format_num(1234.5678), format_num(-0.000123456)
+    ('1.23e+03', '-0.000123')
+    """
+    if x is None or not math.isfinite(x):
+        return "not available"
+    return f"{x:.3g}"
+
+
+def _p_phrase(p: float | None) -> str:
+    text = format_p(p)
+    return f"p {text}" if text.startswith("<") else f"p = {text}"
+
+
+def _label_note(label: str | None) -> str:
+    return f", {label} by common rules of thumb" if label else ""
+
+
+def _pair_name(r: dict) -> str:
+    return f"'{r['a']}' and '{r['b']}'"
+
+
+def _difference_sentence(r: dict, confidence: float) -> str:
+    est, lo, hi = r.get("estimate"), r.get("ci_low"), r.get("ci_high")
+    word = "higher" if (est or 0) > 0 else "lower"
+    what = (
+        "median shift (Hodges–Lehmann)"
+        if r.get("estimate_name", "").startswith("Hodges")
+        else "mean"
+    )
+    interval = (
+        f" ({confidence:.0%} CI {format_num(lo)} to {format_num(hi)})"
+        if lo is not None and hi is not None
+        else ""
+    )
+    effect = r.get("effect")
+    eff = (
+        f"; {r['effect_name']} = {format_num(effect)}{_label_note(r.get('effect_label'))}"
+        if effect is not None
+        else ""
+    )
+    return (
+        f"'{r['a']}' is {word} than '{r['b']}' by {format_num(abs(est or 0))} in {what}"
+        f"{interval}{eff} (adjusted {_p_phrase(r.get('p_adjusted'))})."
+    )
+
+
+def measure_findings(entry: dict, settings) -> list[str]:
+    """Return the findings sentences for one measure's comparison entry (results.json shape).
+
+    Examples
+    --------
+    >>> e = {"measure": "m", "lead_test": None, "reason": "no groups", "not_comparable": []}
+    >>> measure_findings(e, None)[0]
+    "'m' could not be compared between groups: no groups."
+    """
+    out: list[str] = []
+    measure = entry["measure"]
+    for e in entry.get("not_comparable", []):
+        out.append(
+            f"Group '{e['group']}' is left out of the comparisons of '{measure}': {e['reason']}."
+        )
+    if entry.get("lead_test") is None:
+        out.insert(0, f"'{measure}' could not be compared between groups: {entry['reason']}.")
+        out.extend(CAUTIONS[3:])
+        return out
+    alpha = entry["alpha"]
+    confidence = entry["confidence"]
+    out.extend(entry.get("notes", []))
+
+    # Ordering of groups by the summary the lead test works with.
+    centre = entry.get("centre", "mean")
+    rows = sorted(entry["groups"], key=lambda r: -(r[centre] or 0.0))
+    named = ", ".join(f"'{r['group']}' ({format_num(r[centre])})" for r in rows[:MAX_GROUPS_NAMED])
+    more = f", and {len(rows) - MAX_GROUPS_NAMED} more" if len(rows) > MAX_GROUPS_NAMED else ""
+    out.append(f"By {centre}, highest first: {named}{more}.")
+
+    # Overall test and its sensitivity check.
+    lead = next(o for o in entry["omnibus"] if o["test"] == entry["lead_test"])
+    lead_sig = lead["p"] is not None and lead["p"] < alpha
+    verdict = (
+        "the groups differ overall" if lead_sig else "the data do not show an overall difference"
+    )
+    eff = (
+        f"; {lead['effect_name']} = {format_num(lead['effect'])}"
+        f"{_label_note(lead.get('effect_label'))}"
+        if lead.get("effect") is not None
+        else ""
+    )
+    out.append(f"By {lead['test']}, {verdict} ({_p_phrase(lead['p'])}){eff}.")
+    others = [o for o in entry["omnibus"] if o is not lead and o["p"] is not None]
+    disagree = [o for o in others if (o["p"] < alpha) != lead_sig]
+    if disagree:
+        names = " and ".join(f"{o['test']} ({_p_phrase(o['p'])})" for o in disagree)
+        out.append(
+            f"The sensitivity check does not agree: {names} reach the other verdict at "
+            f"alpha = {alpha:g}. Treat the overall result as borderline and look at the "
+            "distributions."
+        )
+
+    pairs = entry.get("pairs", [])
+    family = entry.get("family") or {}
+    if pairs:
+        differ = sorted(
+            (r for r in pairs if r["significant"]), key=lambda r: -abs(r.get("effect") or 0.0)
+        )
+        adjust_name = family.get("adjust_name", "")
+        if differ:
+            out.append(
+                f"Comparing {family.get('description')}, with p-values adjusted by "
+                f"{adjust_name}: {len(differ)} of {len(pairs)} comparisons show a difference."
+            )
+            for r in differ[:MAX_LISTED]:
+                out.append(_difference_sentence(r, confidence))
+            if len(differ) > MAX_LISTED:
+                out.append(f"{len(differ) - MAX_LISTED} more differences are listed in the table.")
+        else:
+            out.append(
+                f"Comparing {family.get('description')}, with p-values adjusted by "
+                f"{adjust_name}: no comparison shows a difference at alpha = {alpha:g}."
+            )
+        equivalent = [r for r in pairs if r.get("equivalent")]
+        for r in equivalent[:MAX_LISTED]:
+            out.append(
+                f"{_pair_name(r)} are equivalent within ±{format_num(r['margin'])}: the two "
+                f"one-sided tests (adjusted {_p_phrase(r.get('tost_p_adjusted'))}) rule out a "
+                "difference larger than the margin."
+            )
+        if len(equivalent) > MAX_LISTED:
+            out.append(f"{len(equivalent) - MAX_LISTED} more equivalent pairs are in the table.")
+        unsure = [r for r in pairs if r["conclusion"] == "inconclusive"]
+        for r in unsure[:MAX_UNSURE]:
+            few = min(r["n_a"], r["n_b"])
+            why = (
+                f"too few rows (the smaller group has {few})"
+                if few < 10
+                else "too much spread for the number of rows"
+            )
+            margin = (
+                f"neither a difference nor equivalence within ±{format_num(r['margin'])} "
+                "could be shown"
+                if r.get("margin") is not None
+                else "no difference could be shown"
+            )
+            out.append(
+                f"{_pair_name(r)}: inconclusive — {margin}, because of {why}. With these sizes "
+                f"and spread only a difference of about {format_num(r['detectable_difference'])}"
+                " or more would be detected reliably (80% power)."
+            )
+        if len(unsure) > MAX_UNSURE:
+            rest = [r["detectable_difference"] for r in unsure[MAX_UNSURE:]]
+            rest = [d for d in rest if d is not None]
+            span = (
+                f"; they could detect only differences of {format_num(min(rest))} to "
+                f"{format_num(max(rest))} or more"
+                if rest
+                else ""
+            )
+            out.append(
+                f"{len(unsure) - MAX_UNSURE} more pairs are inconclusive for the same kind of "
+                f"reason{span} (see the table)."
+            )
+        plain = [r for r in pairs if r["conclusion"] == "no clear difference"]
+        if plain:
+            smallest = min(
+                (
+                    r["detectable_difference"]
+                    for r in plain
+                    if r["detectable_difference"] is not None
+                ),
+                default=None,
+            )
+            out.append(
+                f"{len(plain)} comparison(s) show no clear difference; that is not proof of "
+                "sameness — with these data only differences of about "
+                f"{format_num(smallest)} or more would have been detected reliably."
+            )
+        split = [r for r in pairs if r.get("disagree")]
+        for r in split[:MAX_LISTED]:
+            out.append(
+                f"For {_pair_name(r)} the lead test and a sensitivity test disagree "
+                f"({', '.join(_test_name(n) for n in r['disagree'])}); the difference is "
+                "borderline."
+            )
+        if len(split) > MAX_LISTED:
+            out.append(
+                f"{len(split) - MAX_LISTED} more pairs with disagreeing tests are in the table."
+            )
+    out.extend(CAUTIONS)
+    return out
+
+
+def _test_name(key: str) -> str:
+    return {
+        "welch_p_adjusted": "Welch's t-test",
+        "mw_p_adjusted": "Mann–Whitney U",
+        "tukey_p": "Tukey's HSD",
+        "games_howell_p": "Games–Howell",
+        "dunnett_p": "Dunnett's test",
+        "permutation_p_adjusted": "permutation test",
+    }.get(key, key)
