@@ -298,6 +298,8 @@ def compute(table, settings, rng: np.random.Generator, partial: dict | None = No
                 relationships.append(rel)
                 linear_fits.append(line)
             complete = np.flatnonzero(~(np.isnan(x_all) | np.isnan(y_all)))
+            if not complete.size:
+                continue  # nothing to draw
             picked = complete[_sample(table.codes[complete], len(groups), SCATTER_LIMIT, rng)]
             scatter.append(
                 {

@@ -285,6 +285,9 @@ def _matrix_r(data: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     """
     present = ~np.isnan(data)
     rows, k = data.shape
+    if rows == 0:
+        zeros = np.zeros((k, k))
+        return zeros, zeros.astype(np.int64), zeros.astype(bool)
     if present.all():
         # No missing values: every pair uses all rows, one cross-product does it.
         x0 = data - data.mean(axis=0)
@@ -338,7 +341,10 @@ def _scope_table(
     with np.errstate(invalid="ignore"), warnings.catch_warnings():
         warnings.simplefilter("ignore", RuntimeWarning)  # all-missing columns
         # Exact check, beside the tolerance used for pair subsets.
-        constant = np.nanmin(data, axis=0) == np.nanmax(data, axis=0)
+        if data.shape[0]:
+            constant = np.nanmin(data, axis=0) == np.nanmax(data, axis=0)
+        else:
+            constant = np.zeros(k, dtype=bool)
     scalar = pearson if method == "pearson" else spearman
     for i in range(k):
         for j in range(i + 1, k):
