@@ -58,5 +58,7 @@ def adjust_pvalues(p: list[float | None], method: str = "holm") -> list[float | 
         adjusted = np.empty(m)
         adjusted[order] = step
     for i, value in zip(index, adjusted, strict=True):
-        out[i] = round(float(value), 15)
+        # 15 significant digits hide float noise (0.06, not 0.06000000000000001) and keep
+        # tiny p-values tiny.
+        out[i] = float(f"{float(value):.15g}")
     return out
