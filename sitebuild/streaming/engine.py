@@ -42,7 +42,7 @@ SMALL = SHAPIRO_LIMIT  # groups up to this many values keep every value
 SAMPLE_PER_GROUP = 20_000  # rows kept per group for the sampled Table
 SAMPLE_MIN_TOTAL = 200_000  # ...but at least this many in all when groups are many
 EXTREMES = 20  # most extreme values kept per side per group (the outlier points drawn)
-COUNTER_BUDGET = 1 << 22  # bucket counters per column and pass
+COUNTER_BUDGET = 1 << 18  # bucket counters per column and pass (2 MB)
 COLLECT_CAP = 1 << 14  # a bucket with at most this many values is kept and sorted
 SIGN = np.uint64(1 << 63)
 
