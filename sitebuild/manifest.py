@@ -152,7 +152,7 @@ class _Checker:
     def fail(self, where: str, key: str, problem: str, fix: str, block: int | None = -1):
         line = _key_line(self.text, key, block) if block != -1 else None
         at = f" (line {line})" if line else ""
-        raise SitebuildError(f"{self.path.name}{at}: {where}{key} {problem}; {fix}.")
+        raise SitebuildError(_shown(f"{self.path.name}{at}: {where}{key} {problem}; {fix}."))
 
     def unknown(self, where: str, key: str, allowed: dict, block: int | None):
         close = difflib.get_close_matches(key, list(allowed), n=1, cutoff=0.5)
@@ -160,7 +160,33 @@ class _Checker:
         at = f" (line {line})" if line else ""
         hint = f"did you mean '{close[0]}'" if close else "valid keys are " + ", ".join(allowed)
         place = f" in {where.strip()}" if where.strip() else ""
-        raise SitebuildError(f"{self.path.name}{at}: unknown key '{key}'{place}; {hint}.")
+        raise SitebuildError(_shown(f"{self.path.name}{at}: unknown key '{key}'{place}; {hint}."))
+
+
+def _toml_problem(text: str, exc: Exception) -> str:
+    """Return the parser's complaint, with the line where the broken part starts when the parser
+    only says "at end of document" (an unclosed array, table or string)."""
+    problem = _shown(str(exc))
+    if re.search(r"\bline \d+", problem):
+        return problem
+    lines = text.splitlines()
+    # The broken construct starts at the first line from which no longer prefix parses.
+    for count in range(len(lines), 0, -1):
+        try:
+            tomllib.loads("\n".join(lines[: count - 1]))
+        except tomllib.TOMLDecodeError:
+            continue
+        return problem.replace("(at end of document)", "").rstrip() + (
+            f" (at end of document; the unclosed part starts at line {count})"
+        )
+    return problem
+
+
+def _shown(text: str) -> str:
+    """Return user text fit for a one-line message: line breaks and control characters escaped."""
+    if text.isprintable():
+        return text
+    return "".join(ch if ch.isprintable() else repr(ch)[1:-1] for ch in text)
 
 
 def _is_number(value) -> bool:
@@ -253,7 +279,8 @@ def load_manifest(project: str | Path) -> Manifest:
         data = tomllib.loads(text)
     except tomllib.TOMLDecodeError as exc:
         raise SitebuildError(
-            f"{MANIFEST_NAME}: not valid TOML: {exc}; fix the syntax at that line."
+            f"{MANIFEST_NAME}: not valid TOML: {_toml_problem(text, exc)}; fix the syntax at "
+            "that line."
         ) from None
     check = _Checker(path, text)
     for key in data:
@@ -279,6 +306,8 @@ def load_manifest(project: str | Path) -> Manifest:
             "use one of " + ", ".join(ADJUST_METHODS),
             None,
         )
+    if site.seed < 0:
+        check.fail("[site] ", "seed", f"is {site.seed}", "use a whole number, 0 or more", None)
     if not 1 <= site.history <= 1000:
         check.fail("[site] ", "history", "must be between 1 and 1000", "use e.g. 10", None)
     if not site.title.strip():
