@@ -700,6 +700,13 @@ PAIR_COLUMNS = (
 )
 
 
+def _cell(value):
+    """Table cells: yes/no for booleans (so they are not shown as numbers), others as they are."""
+    if isinstance(value, bool):
+        return "yes" if value else "no"
+    return value
+
+
 def measure_tables(entry: dict, mi: int) -> list[DataTable]:
     """Return the tables of one measure's comparison entry."""
     measure = entry["measure"]
@@ -726,7 +733,9 @@ def measure_tables(entry: dict, mi: int) -> list[DataTable]:
                 id=f"cmp-{mi}-pairs",
                 title=f"Pairwise comparisons for {measure}",
                 columns=PAIR_COLUMNS,
-                rows=tuple({key: r.get(key) for key, _ in PAIR_COLUMNS} for r in entry["pairs"]),
+                rows=tuple(
+                    {key: _cell(r.get(key)) for key, _ in PAIR_COLUMNS} for r in entry["pairs"]
+                ),
                 caption=f"Family: {family.get('description', '')}; adjusted by "
                 f"{family.get('adjust_name', '')}. Tukey, Games–Howell and Dunnett p-values "
                 "control the family-wise error themselves.",
