@@ -116,7 +116,7 @@ def scatter_with_smooths(
     ]
     layers: list[dict] = [
         {
-            "data": {"values": scatter["points"]},
+            "data": {"name": "points"},
             "mark": {"type": "circle", "size": 14, "opacity": 0.45},
             "encoding": {
                 "x": x,
@@ -135,11 +135,14 @@ def scatter_with_smooths(
             },
         }
     ]
+    # Named datasets: each curve's rows are shipped once and shared by its band and line layers.
+    datasets = {"points": scatter["points"], "curves": group_curves, "overall": overall}
+    has_band = {"filter": "isValid(datum.low) && isValid(datum.high)"}
     if group_curves:
-        band = [p for p in group_curves if p["low"] is not None and p["high"] is not None]
         layers.append(
             {
-                "data": {"values": band},
+                "data": {"name": "curves"},
+                "transform": [has_band],
                 "mark": {"type": "area", "opacity": 0.12},
                 "encoding": {
                     "x": x,
@@ -151,7 +154,7 @@ def scatter_with_smooths(
         )
         layers.append(
             {
-                "data": {"values": group_curves},
+                "data": {"name": "curves"},
                 "mark": {"type": "line", "strokeWidth": 1.8},
                 "encoding": {
                     "x": x,
@@ -162,10 +165,10 @@ def scatter_with_smooths(
             }
         )
     if overall:
-        band = [p for p in overall if p["low"] is not None and p["high"] is not None]
         layers.append(
             {
-                "data": {"values": band},
+                "data": {"name": "overall"},
+                "transform": [has_band],
                 "mark": {"type": "area", "color": INK, "opacity": 0.15},
                 "encoding": {
                     "x": x,
@@ -177,14 +180,14 @@ def scatter_with_smooths(
         # A white casing under the all-rows smooth keeps it apart from the group lines.
         layers.append(
             {
-                "data": {"values": overall},
+                "data": {"name": "overall"},
                 "mark": {"type": "line", "color": "#ffffff", "strokeWidth": 5.5},
                 "encoding": {"x": x, "y": {"field": "fit", "type": "quantitative"}},
             }
         )
         layers.append(
             {
-                "data": {"values": overall},
+                "data": {"name": "overall"},
                 "mark": {"type": "line", "color": INK, "strokeWidth": 3},
                 "encoding": {
                     "x": x,
@@ -208,5 +211,5 @@ def scatter_with_smooths(
                 "encoding": {"x": x, "y": {"field": "fit", "type": "quantitative"}},
             }
         )
-    spec = {"height": 300, "layer": layers}
+    spec = {"height": 300, "datasets": datasets, "layer": layers}
     return themed(spec)

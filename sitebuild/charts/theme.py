@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import copy
+import math
 
 # Okabe & Ito (2008), "Color Universal Design": distinguishable with the common colour-vision
 # deficiencies. Ordered so the first few are far apart.
@@ -59,9 +60,59 @@ CONFIG = {
 }
 
 
+def _round_records(records: list) -> list:
+    """Round each numeric field of inline records to 1/100,000 of that field's range.
+
+    A chart cannot show more than a few thousand distinct positions, so digits beyond that only
+    add bytes; rounding relative to the field's range (not the value) keeps data with a large
+    common offset (10,000,000.1 vs 10,000,000.3) distinct.
+    """
+    if not records or not all(isinstance(r, dict) for r in records):
+        return records
+    spans: dict[str, tuple[float, float]] = {}
+    for record in records:
+        for key, value in record.items():
+            if isinstance(value, float) and math.isfinite(value):
+                low, high = spans.get(key, (value, value))
+                spans[key] = (min(low, value), max(high, value))
+    decimals = {}
+    for key, (low, high) in spans.items():
+        scale = max(high - low, abs(high), abs(low)) if high == low else high - low
+        decimals[key] = 5 - math.floor(math.log10(scale)) if scale > 0 else None
+    out = []
+    for record in records:
+        rounded = dict(record)
+        for key, places in decimals.items():
+            value = rounded.get(key)
+            if places is not None and isinstance(value, float) and math.isfinite(value):
+                rounded[key] = round(value, places)
+        out.append(rounded)
+    return out
+
+
+def _compact_data(node):
+    """Apply :func:`_round_records` to every inline ``data.values`` list in a spec."""
+    if isinstance(node, dict):
+        named = node.get("datasets")
+        if isinstance(named, dict):
+            for name, records in named.items():
+                if isinstance(records, list):
+                    named[name] = _round_records(records)
+        data = node.get("data")
+        if isinstance(data, dict) and isinstance(data.get("values"), list):
+            data["values"] = _round_records(data["values"])
+        for key, value in node.items():
+            if key != "data":
+                _compact_data(value)
+    elif isinstance(node, list):
+        for item in node:
+            _compact_data(item)
+
+
 def themed(spec: dict) -> dict:
-    """Return ``spec`` with our config and a responsive width; the input is not modified."""
+    """Return ``spec`` with our config, inline data rounded to chart precision; input unchanged."""
     out = copy.deepcopy(spec)
+    _compact_data(out)
     # No schema URL: pages must not name any web address; the embed is told the mode instead.
     out.pop("$schema", None)
     config = copy.deepcopy(CONFIG)
