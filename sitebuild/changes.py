@@ -288,9 +288,9 @@ def summary_lines(changes: dict, limit: int = 8) -> list[str]:
             net = sum(r["change"] for r in d["rows"])
             parts.append(f"rows changed in {_plural(len(d['rows']), 'group')} (net {net:+,})")
         if d["moved"]:
-            parts.append(
-                f"{_plural(len(d['moved']), 'mean or median')} moved beyond sampling noise"
-            )
+            n = len(d["moved"])
+            what = "group mean or median" if n == 1 else "group means or medians"
+            parts.append(f"{n} {what} moved beyond sampling noise")
         if d["verdicts"]:
             parts.append(f"{_plural(len(d['verdicts']), 'pairwise conclusion')} changed")
         if d["correlations"]:

@@ -8,6 +8,8 @@ import json
 import math
 from statistics import NormalDist
 
+import pytest
+
 from sitebuild import build
 from sitebuild.changes import compare, extend_history, results_id
 from sitebuild.scaffold import new_project
@@ -200,3 +202,32 @@ def test_rebuild_after_data_update_records_and_shows_changes(tmp_path):
     assert not third.written
     again = json.loads((third.out / "results.json").read_text(encoding="utf-8"))
     assert again["changes"] == results["changes"] and len(again["history"]) == 2
+
+
+def test_real_rebuild_flags_flipped_pairwise_conclusions(tmp_path):
+    root = new_project(tmp_path / "p").root
+    build(root)
+    results = json.loads((root / "site/results.json").read_text(encoding="utf-8"))
+    if "comparisons" not in results["datasets"][0]:
+        pytest.skip("the comparisons section is not in this build")
+    volume = next(
+        e for e in results["datasets"][0]["comparisons"] if e["measure"] == "loaf volume (ml)"
+    )
+    pair = next(p for p in volume["pairs"] if {p["a"], p["b"]} == {"rye blend", "spelt blend"})
+    assert pair["p_adjusted"] < 0.05  # the scaffold's rye loaves are clearly smaller
+
+    def lift_rye(rows):
+        at = rows[0].index("loaf volume (ml)")
+        for row in rows[1:]:
+            if row[1] == "rye blend":
+                row[at] = str(float(row[at]) + 230)  # close the gap to the other flours
+        return rows
+
+    _rewrite(root / "data/loaves.csv", lift_rye)
+    report = build(root)
+    results = json.loads((root / "site/results.json").read_text(encoding="utf-8"))
+    (ds,) = results["changes"]["datasets"]
+    flipped = {(v["measure"], frozenset((v["a"], v["b"]))): v for v in ds["verdicts"]}
+    verdict = flipped[("loaf volume (ml)", frozenset(("rye blend", "spelt blend")))]
+    assert (verdict["before"], verdict["after"]) == ("different", "not shown different")
+    assert any("pairwise conclusions changed" in line for line in report.changes)
