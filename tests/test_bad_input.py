@@ -14,6 +14,7 @@ from __future__ import annotations
 import json
 import os
 import re
+import shutil
 import subprocess
 import sys
 import textwrap
@@ -78,13 +79,24 @@ class Project:
                 path.write_text(content, encoding="utf-8")
 
 
+@pytest.fixture(scope="module")
+def good_build(tmp_path_factory) -> tuple[Path, Path]:
+    """The good project and its site, built once; each test works on a copy of both."""
+    work = tmp_path_factory.mktemp("good")
+    root = write_project(work / "p", MANIFEST, {"data/d.csv": GOOD_CSV})
+    out = work / "site"
+    import sitebuild
+
+    sitebuild.build(root, out=out)
+    return root, out
+
+
 @pytest.fixture
-def project(tmp_path, capsys) -> Project:
+def project(tmp_path, good_build) -> Project:
     """A project whose good site is already built into ``out`` (outside the project)."""
-    root = write_project(tmp_path / "p", MANIFEST, {"data/d.csv": GOOD_CSV})
-    out = tmp_path / "site"
-    assert main(["build", str(root), "--out", str(out), "--quiet"]) == 0
-    capsys.readouterr()
+    root, out = tmp_path / "p", tmp_path / "site"
+    shutil.copytree(good_build[0], root, symlinks=True)
+    shutil.copytree(good_build[1], out, symlinks=True)
     before = snapshot(out)
     assert "index.html" in before and "results.json" in before
     return Project(root=root, out=out, before=before)
