@@ -61,8 +61,20 @@ ATMWTAG_CERTIFIED = {
 # Certified values shared by each difficulty level (NIST StRD SmLs01/04/07, 02/05/08, 03/06/09).
 SMLS_CERTIFIED = {
     21: {"ss_between": 1.68, "ss_within": 1.80, "f": 21.0, "r2": 4.82758620689655e-01, "df2": 180},
-    201: {"ss_between": 16.08, "ss_within": 18.0, "f": 201.0, "r2": 4.71830985915493e-01, "df2": 1800},
-    2001: {"ss_between": 160.08, "ss_within": 180.0, "f": 2001.0, "r2": 4.70712773465067e-01, "df2": 18000},
+    201: {
+        "ss_between": 16.08,
+        "ss_within": 18.0,
+        "f": 201.0,
+        "r2": 4.71830985915493e-01,
+        "df2": 1800,
+    },
+    2001: {
+        "ss_between": 160.08,
+        "ss_within": 180.0,
+        "f": 2001.0,
+        "r2": 4.70712773465067e-01,
+        "df2": 18000,
+    },
 }
 # Digits attainable in double precision: the data themselves carry representation error of about
 # ulp(offset) on deviations of 0.1 — 1e-16 for no offset, ~1e-10 for 1e6 and ~1e-4 for 1e12 — so
@@ -139,7 +151,13 @@ def _digits(centre: int, per_group: int) -> list[int]:
 def test_smls_generator_reproduces_the_published_first_values():
     # Source: NIST StRD SmLs07 lists treatment 1 as 1000000000000.4, .3, .5, .3, .5, ...
     first = [float(f"1000000000000.{d % 10}") for d in _digits(14, 5)]
-    assert first == [1000000000000.4, 1000000000000.3, 1000000000000.5, 1000000000000.3, 1000000000000.5]
+    assert first == [
+        1000000000000.4,
+        1000000000000.3,
+        1000000000000.5,
+        1000000000000.3,
+        1000000000000.5,
+    ]
 
 
 def test_anova_agrees_with_scipy_f_oneway():
@@ -219,7 +237,9 @@ def test_kruskal_wallis_accepts_precomputed_ranks():
     groups = [rng.normal(i * 0.2, 1, 25) for i in range(3)]
     ranks = stats.rankdata(np.concatenate(groups))
     split = np.split(ranks, np.cumsum([len(g) for g in groups])[:-1])
-    assert kruskal_wallis(groups, ranks=split).statistic == pytest.approx(stats.kruskal(*groups).statistic)
+    assert kruskal_wallis(groups, ranks=split).statistic == pytest.approx(
+        stats.kruskal(*groups).statistic
+    )
 
 
 @pytest.mark.parametrize("center", ["median", "mean"])

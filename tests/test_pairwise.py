@@ -257,7 +257,9 @@ def test_hedges_g_matches_pingouin_and_hedges_olkin_interval():
     import pingouin as pg
 
     r = hedges_g(SLEEP_1, SLEEP_2, confidence=0.95)
-    assert r.estimate == pytest.approx(pg.compute_effsize(SLEEP_1, SLEEP_2, eftype="hedges"), rel=1e-10)
+    assert r.estimate == pytest.approx(
+        pg.compute_effsize(SLEEP_1, SLEEP_2, eftype="hedges"), rel=1e-10
+    )
     g = r.estimate
     se = math.sqrt(20 / 100 + g**2 / 40)
     z = stats.norm.ppf(0.975)
@@ -275,7 +277,9 @@ def test_cliffs_delta_matches_direct_evaluation_of_cliff_1993():
     delta = d.mean()
     di, dj = d.mean(axis=1), d.mean(axis=0)
     s2 = (
-        n**2 * np.sum((di - delta) ** 2) + m**2 * np.sum((dj - delta) ** 2) - np.sum((d - delta) ** 2)
+        n**2 * np.sum((di - delta) ** 2)
+        + m**2 * np.sum((dj - delta) ** 2)
+        - np.sum((d - delta) ** 2)
     ) / (m * n * (m - 1) * (n - 1))
     s2 = max(s2, (1 - delta**2) / (m * n - 1))
     z = stats.norm.ppf(0.975)

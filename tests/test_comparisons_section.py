@@ -1,0 +1,292 @@
+"""The comparisons section: JSON-ready output, schema, lead-test choice, adjustment, letters,
+charts, layout escaping, bounded output, error-rate simulation and speed."""
+
+from __future__ import annotations
+
+import json
+import math
+import time
+from pathlib import Path
+
+import numpy as np
+import pytest
+
+from sitebuild.ingest import IngestReport, Table
+from sitebuild.manifest import DatasetSpec, SiteSettings
+from sitebuild.sections import comparisons as sec
+
+EVIL = '<script>alert("x")</script>'
+
+
+def make_table(arrays, names=None, measures=("m",), reference=None, margin=None, permutations=0):
+    names = names or [f"G{i}" for i in range(len(arrays))]
+    codes = np.concatenate([np.full(len(v), i, np.int32) for i, v in enumerate(arrays)])
+    base = np.concatenate([np.asarray(v, float) for v in arrays])
+    columns = {m: base * (1 + j) for j, m in enumerate(measures)}
+    spec = DatasetSpec(
+        name="d",
+        file="d.csv",
+        path=Path("d.csv"),
+        group="g",
+        measures=tuple(measures),
+        reference=reference,
+        equivalence_margin=margin or {},
+        permutations=permutations,
+    )
+    report = IngestReport(
+        file="d.csv", sha256="", rows_read=len(codes), rows_used=len(codes), rows_dropped=0,
+        drop_reasons={}, missing={}, unparsed={}, encoding="utf-8", delimiter=",",
+    )  # fmt: skip
+    return Table(spec=spec, groups=tuple(names), codes=codes, columns=columns, report=report)
+
+
+def _walk_numbers(value):
+    if isinstance(value, dict):
+        for v in value.values():
+            yield from _walk_numbers(v)
+    elif isinstance(value, list):
+        for v in value:
+            yield from _walk_numbers(v)
+    elif isinstance(value, float):
+        yield value
+
+
+def _validate(result):
+    import jsonschema
+
+    fragment = json.loads(
+        (Path(sec.__file__).parents[1] / "schema" / "sections" / "comparisons.json").read_text()
+    )
+    schema = {
+        "$schema": "https://json-schema.org/draft/2020-12/schema",
+        "type": "object",
+        **fragment,
+    }
+    jsonschema.Draft202012Validator(schema).validate(result)
+
+
+@pytest.fixture(scope="module")
+def mixed():
+    rng = np.random.default_rng(1)
+    arrays = [
+        rng.normal(10.0, 1.0, 40),
+        rng.normal(10.05, 1.0, 40),  # equivalent to the first within ±0.8
+        rng.normal(12.0, 1.0, 40),  # clearly higher
+        rng.normal(10.5, 3.0, 6),  # few rows and wide: inconclusive
+        np.array([4.0]),  # not comparable: one value
+        np.array([7.0, 7.0, 7.0]),  # not comparable: no variation
+    ]
+    names = ["North", "South", EVIL, "East & co", "Solo", "Flat"]
+    table = make_table(arrays, names=names, margin={"m": 0.8}, permutations=199)
+    return sec.compute(table, SiteSettings(), np.random.default_rng(5))
+
+
+def test_output_is_json_ready_and_matches_schema(mixed):
+    text = json.dumps(mixed, allow_nan=False)
+    assert "NaN" not in text and "Infinity" not in text
+    assert all(math.isfinite(v) for v in _walk_numbers(mixed))
+    _validate(mixed)
+
+
+def test_contract_keys_are_present(mixed):
+    entry = mixed["comparisons"][0]
+    for key in ("measure", "lead_test", "lead_reason", "omnibus", "pairs", "letters", "findings"):
+        assert key in entry
+    for o in entry["omnibus"]:
+        assert set(o) >= {"test", "statistic", "df1", "df2", "p", "effect_name", "effect"}
+    for p in entry["pairs"]:
+        assert set(p) >= {
+            "a", "b", "test", "statistic", "df", "p", "p_adjusted", "estimate_name", "estimate",
+            "ci_low", "ci_high", "effect_name", "effect", "effect_ci_low", "effect_ci_high",
+            "detectable_difference", "equivalent",
+        }  # fmt: skip
+
+
+def test_null_numbers_carry_a_reason(mixed):
+    for p in mixed["comparisons"][0]["pairs"]:
+        for key in ("tukey_p", "games_howell_p", "dunnett_p", "permutation_p", "df"):
+            if p.get(key) is None:
+                assert key in p["null_reasons"], key
+
+
+def test_groups_without_two_varying_values_are_listed_with_reasons(mixed):
+    entry = mixed["comparisons"][0]
+    reasons = {e["group"]: e["reason"] for e in entry["not_comparable"]}
+    assert "fewer than 2 values" in reasons["Solo"]
+    assert "no variation" in reasons["Flat"]
+    compared = {p["a"] for p in entry["pairs"]} | {p["b"] for p in entry["pairs"]}
+    assert not compared & {"Solo", "Flat"}
+
+
+def test_adjusted_p_matches_statsmodels_multipletests(mixed):
+    # Reference: statsmodels.stats.multitest.multipletests(method="holm").
+    from statsmodels.stats.multitest import multipletests
+
+    pairs = mixed["comparisons"][0]["pairs"]
+    raw = [p["p"] for p in pairs]
+    ref = multipletests(raw, method="holm")[1]
+    assert [p["p_adjusted"] for p in pairs] == pytest.approx(list(ref), rel=1e-12)
+
+
+def test_verdicts_cover_differs_equivalent_and_inconclusive(mixed):
+    pairs = {(p["a"], p["b"]): p for p in mixed["comparisons"][0]["pairs"]}
+    assert pairs[("North", EVIL)]["conclusion"] == "differs"
+    assert pairs[("North", "South")]["equivalent"] is True
+    assert pairs[("North", "East & co")]["conclusion"] == "inconclusive"
+    findings = " ".join(mixed["comparisons"][0]["findings"])
+    assert "equivalent within ±0.8" in findings
+    assert "inconclusive" in findings
+    assert "association, not" in findings and "decision stays" in findings
+
+
+def test_letters_agree_with_significant_pairs(mixed):
+    entry = mixed["comparisons"][0]
+    letters = entry["letters"]
+    for p in entry["pairs"]:
+        shares = bool(set(letters[p["a"]]) & set(letters[p["b"]]))
+        assert shares == (not p["significant"])
+
+
+def test_permutation_seed_and_count_are_recorded(mixed):
+    perm = mixed["comparisons"][0]["permutation"]
+    assert perm["count"] == 199 and isinstance(perm["seed"], int)
+    again = sec.compute(
+        make_table([np.arange(5.0), np.arange(5.0) + 2], margin=None, permutations=199),
+        SiteSettings(),
+        np.random.default_rng(5),
+    )
+    same = sec.compute(
+        make_table([np.arange(5.0), np.arange(5.0) + 2], permutations=199),
+        SiteSettings(),
+        np.random.default_rng(5),
+    )
+    assert again == same
+
+
+def test_lead_test_follows_the_documented_checks():
+    rng = np.random.default_rng(2)
+    similar = [rng.normal(0, 1, 40) for _ in range(3)]
+    spread = [rng.normal(0, s, 40) for s in (1, 1, 4)]
+    skewed = [rng.lognormal(0, 1.2, 12) for _ in range(3)]
+    lead = {}
+    for name, arrays in (("similar", similar), ("spread", spread), ("skewed", skewed)):
+        entry = sec.compute(make_table(arrays), SiteSettings(), np.random.default_rng(1))[
+            "comparisons"
+        ][0]
+        lead[name] = (entry["lead_test"], entry["pairs"][0]["test"])
+        assert entry["lead_reason"]
+    assert lead["similar"] == ("one-way ANOVA", "Welch's t-test")
+    assert lead["spread"] == ("Welch's ANOVA", "Welch's t-test")
+    assert lead["skewed"] == ("Kruskal–Wallis", "Mann–Whitney U")
+
+
+def test_reference_group_gives_dunnett_and_no_letters():
+    rng = np.random.default_rng(3)
+    arrays = [rng.normal(i * 0.5, 1, 20) for i in range(4)]
+    entry = sec.compute(
+        make_table(arrays, reference="G0"), SiteSettings(), np.random.default_rng(1)
+    )["comparisons"][0]
+    assert entry["mode"] == "reference"
+    assert [(p["a"], p["b"]) for p in entry["pairs"]] == [("G1", "G0"), ("G2", "G0"), ("G3", "G0")]
+    assert all(p["dunnett_p"] is not None for p in entry["pairs"])
+    assert entry["letters"] == {} and entry["letters_reason"]
+
+
+def test_many_groups_are_summarised_not_paired():
+    rng = np.random.default_rng(4)
+    arrays = [rng.normal(0, 1, 8) for _ in range(500)]
+    began = time.perf_counter()
+    result = sec.compute(make_table(arrays), SiteSettings(), np.random.default_rng(1))
+    elapsed = time.perf_counter() - began
+    entry = result["comparisons"][0]
+    assert entry["mode"] == "each group vs the rest"
+    assert len(entry["pairs"]) == 500  # not 124,750
+    assert "pooled" in entry["family"]["description"]
+    _validate(result)
+    charts = sec.charts(result, SiteSettings())
+    forest = next(c for c in charts if c.id == "cmp-0-forest")
+    assert len(forest.spec["data"]["values"]) <= 60
+    assert elapsed < 30
+
+
+def test_too_few_groups_is_a_reasoned_empty_entry():
+    result = sec.compute(
+        make_table([np.array([1.0, 2.0]), np.array([3.0])]),
+        SiteSettings(),
+        np.random.default_rng(1),
+    )
+    entry = result["comparisons"][0]
+    assert entry["lead_test"] is None and entry["reason"]
+    assert entry["pairs"] == [] and entry["findings"]
+    _validate(result)
+
+
+def test_charts_compile_and_use_only_safe_field_names(mixed):
+    import vl_convert as vlc
+
+    charts = sec.charts(mixed, SiteSettings())
+    assert [c.id for c in charts] == ["cmp-0-forest", "cmp-0-pmatrix"]
+    safe = {"label", "x", "low", "high", "status", "order", "row", "col", "value", "band", "text"}
+
+    def fields(node):
+        if isinstance(node, dict):
+            for k, v in node.items():
+                if k == "field":
+                    yield v
+                else:
+                    yield from fields(v)
+        elif isinstance(node, list):
+            for v in node:
+                yield from fields(v)
+
+    for chart in charts:
+        assert set(fields(chart.spec)) <= safe
+        assert "<svg" in vlc.vegalite_to_svg(chart.spec)
+        for row in chart.spec["data"]["values"]:
+            assert set(row) <= safe
+
+
+def test_layout_escapes_labels_and_shows_lead_test_first(mixed):
+    from sitebuild.sections import Chart
+    from sitebuild.site.render import environment
+
+    env = environment()
+    charts = {c.id: c for c in sec.charts(mixed, SiteSettings())}
+    tables = {t.id: t for t in sec.tables(mixed, SiteSettings())}
+    assert set(tables) == {"cmp-0-omnibus", "cmp-0-pairs", "cmp-0-letters", "cmp-0-excluded"}
+    assert all(isinstance(c, Chart) for c in charts.values())
+    ds = {**mixed, "name": "d"}
+    html = env.get_template("sections/comparisons.html").render(
+        ds=ds, measure="m", mi=0, charts=charts, tables=tables, site=SiteSettings()
+    )
+    assert EVIL not in html and "&lt;script&gt;" in html
+    assert '<section class="comparisons"' in html
+    assert html.index("Lead test") < html.index("Sensitivity check")
+
+
+@pytest.mark.slow
+def test_any_pair_declared_different_under_holm_stays_at_alpha():
+    # Simulation: 3 groups of 15 from one normal distribution, 300 runs of the whole section.
+    # With Holm the family-wise error is at most alpha = 0.05; the Monte-Carlo SD of the share
+    # at 0.05 is sqrt(0.05 * 0.95 / 300) = 0.0126, so the share must stay below
+    # 0.05 + 3 SD = 0.088. (About 15 s: Tukey and Games–Howell integrals dominate.)
+    rng = np.random.default_rng(2024)
+    runs, hits = 300, 0
+    for _ in range(runs):
+        arrays = [rng.normal(0, 1, 15) for _ in range(3)]
+        entry = sec.compute(make_table(arrays), SiteSettings(), rng)["comparisons"][0]
+        hits += any(p["significant"] for p in entry["pairs"])
+    assert hits / runs <= 0.05 + 3 * math.sqrt(0.05 * 0.95 / runs)
+
+
+@pytest.mark.slow
+def test_eight_groups_of_125k_rows_finish_in_seconds():
+    # Performance target: the whole comparisons stage for 8 x 125,000 rows and one measure.
+    rng = np.random.default_rng(6)
+    arrays = [rng.normal(10 + 0.01 * i, 1 + 0.05 * i, 125_000) for i in range(8)]
+    table = make_table(arrays)
+    began = time.perf_counter()
+    result = sec.compute(table, SiteSettings(), np.random.default_rng(1))
+    elapsed = time.perf_counter() - began
+    assert len(result["comparisons"][0]["pairs"]) == 28
+    assert elapsed < 20  # about 3-5 s on an idle 2-core machine

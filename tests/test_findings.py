@@ -1,0 +1,92 @@
+"""Plain-language findings: built from results only, with the cautions and rule-of-thumb notes."""
+
+from __future__ import annotations
+
+from sitebuild.manifest import SiteSettings
+from sitebuild.stats.findings import CAUTIONS, format_p, measure_findings
+
+
+def _pair(a, b, **kw):
+    base = {
+        "a": a, "b": b, "n_a": 40, "n_b": 40, "estimate_name": "difference in means",
+        "estimate": 2.0, "ci_low": 1.5, "ci_high": 2.5, "effect_name": "Hedges' g",
+        "effect": 1.1, "effect_label": "large", "p_adjusted": 0.0001, "significant": True,
+        "equivalent": None, "conclusion": "differs", "detectable_difference": 0.6,
+        "margin": None, "tost_p_adjusted": None, "disagree": [],
+    }  # fmt: skip
+    base.update(kw)
+    return base
+
+
+def _entry(pairs, omnibus_p=(0.001, 0.002, 0.2)):
+    return {
+        "measure": "weight",
+        "lead_test": "Welch's ANOVA",
+        "alpha": 0.05,
+        "confidence": 0.95,
+        "centre": "mean",
+        "groups": [
+            {"group": "A", "mean": 3.0, "median": 3.0, "n": 40},
+            {"group": "B", "mean": 1.0, "median": 1.0, "n": 40},
+            {"group": "C", "mean": 2.0, "median": 2.0, "n": 5},
+        ],
+        "omnibus": [
+            {"test": "one-way ANOVA", "p": omnibus_p[0], "effect_name": "omega²", "effect": 0.2, "effect_label": "large"},
+            {"test": "Welch's ANOVA", "p": omnibus_p[1], "effect_name": "omega² (from Welch's F)", "effect": 0.18, "effect_label": "large"},
+            {"test": "Kruskal–Wallis", "p": omnibus_p[2], "effect_name": "epsilon²", "effect": 0.01, "effect_label": "small"},
+        ],  # fmt: skip
+        "pairs": pairs,
+        "family": {"description": "all 3 pairs of 3 groups", "size": 3, "adjust": "holm", "adjust_name": "Holm (1979) step-down"},
+        "not_comparable": [{"group": "D", "n": 1, "reason": "fewer than 2 values (n = 1)"}],
+        "notes": [],
+    }  # fmt: skip
+
+
+def test_findings_name_order_differences_intervals_and_rule_of_thumb():
+    pairs = [
+        _pair("A", "B"),
+        _pair("A", "C", significant=False, conclusion="inconclusive", n_b=5, margin=0.5,
+              equivalent=False, p_adjusted=0.4, detectable_difference=3.2),
+        _pair("B", "C", significant=False, conclusion="equivalent", equivalent=True, margin=0.5,
+              tost_p_adjusted=0.01, p_adjusted=0.9),
+    ]  # fmt: skip
+    text = measure_findings(_entry(pairs), SiteSettings())
+    joined = " ".join(text)
+    assert "By mean, highest first: 'A' (3), 'C' (2), 'B' (1)." in text
+    assert "'A' is higher than 'B' by 2 in mean (95% CI 1.5 to 2.5)" in joined
+    assert "large by common rules of thumb" in joined
+    assert "'B' and 'C' are equivalent within ±0.5" in joined
+    assert "inconclusive" in joined and "too few rows (the smaller group has 5)" in joined
+    assert "about 3.2 or more" in joined
+    assert "Group 'D' is left out" in joined
+    for caution in CAUTIONS:
+        assert caution in text
+
+
+def test_findings_report_disagreement_between_lead_and_sensitivity_tests():
+    text = " ".join(measure_findings(_entry([_pair("A", "B")]), SiteSettings()))
+    # The lead (Welch, p = 0.002) says "differ"; Kruskal–Wallis (p = 0.2) does not.
+    assert "does not agree" in text and "Kruskal–Wallis (p = 0.2)" in text
+    agree = " ".join(
+        measure_findings(_entry([_pair("A", "B")], (0.001, 0.002, 0.003)), SiteSettings())
+    )
+    assert "does not agree" not in agree
+
+
+def test_not_significant_is_not_called_no_difference():
+    plain = _pair("A", "B", significant=False, conclusion="no clear difference", p_adjusted=0.3)
+    text = " ".join(measure_findings(_entry([plain]), SiteSettings()))
+    assert "not proof of sameness" in text
+    assert "about 0.6 or more" in text
+
+
+def test_findings_use_only_the_results_given():
+    # Same results in, same sentences out; nothing else is consulted.
+    e = _entry([_pair("A", "B")])
+    assert measure_findings(e, SiteSettings()) == measure_findings(e, None)
+
+
+def test_p_values_are_written_plainly():
+    assert format_p(0.0004) == "< 0.001"
+    assert format_p(0.0312) == "0.0312"
+    assert format_p(None) == "not available"
