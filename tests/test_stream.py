@@ -172,7 +172,7 @@ def small_passes(monkeypatch):
     monkeypatch.setattr(engine, "COUNTER_BUDGET", 1 << 8)
     monkeypatch.setattr(engine, "COLLECT_CAP", 64)
     original = source.batches
-    monkeypatch.setattr(engine, "batches", lambda s, p, batch_rows=7_000: original(s, p, 7_000))
+    monkeypatch.setattr(engine, "batches", lambda s, p, **kw: original(s, p, 7_000))
 
 
 @pytest.mark.parametrize("kind", ["csv", "parquet", "folder"])

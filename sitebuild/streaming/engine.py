@@ -28,6 +28,7 @@ What is exact and what is sampled
 from __future__ import annotations
 
 import math
+import weakref
 from collections.abc import Callable
 from dataclasses import dataclass, field
 
@@ -35,7 +36,7 @@ import numpy as np
 
 from ..ingest import ColumnProblem, IngestReport, natural_key
 from ..stats.summary import SHAPIRO_LIMIT, Summary, dagostino_pearson, describe_sorted
-from .pieces import MOMENT_FIELDS, CoMoments, Extremes, Moments, Sample
+from .pieces import MOMENT_FIELDS, CoMoments, Extremes, Moments, Rows, Sample
 from .source import Batch, Source, batches
 
 SMALL = SHAPIRO_LIMIT  # groups up to this many values keep every value
@@ -128,26 +129,27 @@ class DiscoverTask:
             state.problems[name] = (count + problem.count, (*examples, *problem.examples)[:3])
         groups = len(state.labels)
         codes = codes[keep]
-        columns = {n: v[keep] for n, v in batch.columns.items()}
         rows_here = np.bincount(codes, minlength=groups)
         rows_here[: state.group_rows.size] += state.group_rows
         state.group_rows = rows_here
+        # One stable sort by group serves every column's moments, extremes and the sample.
+        rows = Rows.of(codes, groups)
+        columns = {n: rows.arrange(v[keep]) for n, v in batch.columns.items()}
         for name in self.numeric:
             v = columns[name]
-            ok = ~np.isnan(v)
-            state.missing[name] += int(v.size - ok.sum())
-            piece = Moments.of(v[ok], codes[ok], groups, state.moments[name].pivot)
+            state.missing[name] += int(np.isnan(v).sum())
+            piece = Moments.from_rows(rows, v, state.moments[name].pivot)
             state.moments[name] = state.moments[name].merge(piece)
-            state.extremes[name] = state.extremes[name].merge(
-                Extremes.of(v[ok], codes[ok], groups, EXTREMES)
-            )
+            extremes = Extremes.from_rows(rows, v, EXTREMES)
+            state.extremes[name] = state.extremes[name].merge(extremes)
         for a, b in state.pairs():
             pivots = (state.moments[a].pivot, state.moments[b].pivot)
-            piece = CoMoments.of(columns[a], columns[b], codes, groups, pivots)
+            piece = CoMoments.from_rows(rows, columns[a], columns[b], pivots)
             state.comoments[(a, b)] = state.comoments[(a, b)].merge(piece)
-        rows = (np.int64(part) << 40) + batch.first_row + np.flatnonzero(keep)
+        numbers = rows.arrange((np.int64(part) << 40) + batch.first_row + np.flatnonzero(keep))
         keys = state.rng.random(codes.size)
-        state.sample = state.sample.add(keys, codes, rows, columns)
+        sorted_codes = rows.arrange(codes)
+        state.sample = state.sample.add_rows(rows, keys, sorted_codes, numbers, columns)
         return state
 
     def merge(self, a: Discovery, b: Discovery) -> Discovery:
@@ -257,10 +259,9 @@ class ScanTask:
             ok = ~np.isnan(v)
             v, c = v[ok], codes[ok]
             acc = state[name]
-            every = np.full(c.size, self.groups, dtype=np.int64)
             keys = order_key(v)
-            for lab in (c, every):
-                self._scan(acc, plan, v, keys, lab)
+            self._scan(acc, plan, v, keys, c)
+            self._scan_all(acc, plan, v, keys)
             if plan.edges is not None:
                 bins = np.searchsorted(plan.edges[:-1], v, side="right") - 1
                 width = plan.edges.size - 1
@@ -292,6 +293,7 @@ class ScanTask:
         # Intervals of the labels seen here, one "slot" at a time: slot j holds each label's
         # j-th open interval, so the work is a few vector operations per slot, never per row.
         for slot in _slots(plan.i_label, labels):
+            slot[self.groups] = -1  # the all-groups row has its own scan
             index = slot[lab]
             present = index >= 0
             at = np.where(present, index, 0)
@@ -316,6 +318,43 @@ class ScanTask:
                 acc["counts"] += np.bincount(
                     offsets[ids_c] + sub.astype(np.int64), minlength=acc["counts"].size
                 )
+
+    def _scan_all(self, acc, plan: ColumnPlan, v, keys) -> None:
+        """:meth:`_scan` for the all-groups row: the same work with one label, as scalars."""
+        lab = self.groups
+        if self.first:
+            d = np.abs(v - plan.mean[lab])
+            sd = plan.sd[lab]
+            acc["within"][0, lab] += np.count_nonzero(d <= sd)
+            acc["within"][1, lab] += np.count_nonzero(d <= 2 * sd)
+            if plan.collect_all[lab] and v.size:
+                acc["small"].append((np.full(v.size, lab, dtype=np.int64), v))
+        if plan.fence_low is not None:
+            low = v < plan.fence_low[lab]
+            high = v > plan.fence_high[lab]
+            acc["below"][lab] += np.count_nonzero(low)
+            acc["above"][lab] += np.count_nonzero(high)
+            acc["whisker_low"][lab] = min(acc["whisker_low"][lab], v[~low].min(initial=np.inf))
+            acc["whisker_high"][lab] = max(acc["whisker_high"][lab], v[~high].max(initial=-np.inf))
+        mine = np.flatnonzero(plan.i_label == lab)
+        if not mine.size:
+            return
+        rel = keys - plan.kmin[lab]
+        for i in mine.tolist():
+            member = (rel >> plan.i_shift[i]) == plan.i_prefix[i]
+            if not member.any():
+                continue
+            if plan.i_collect[i]:
+                acc["kept"].append((np.full(np.count_nonzero(member), i), v[member]))
+                continue
+            r = rel[member]
+            shift, nxt = plan.i_shift[i], plan.i_next[i]
+            sub = ((r >> nxt) - (plan.i_prefix[i] << (shift - nxt))).astype(np.int64)
+            acc["key_low"][i] = min(acc["key_low"][i], r.min())
+            acc["key_high"][i] = max(acc["key_high"][i], r.max())
+            start = int(acc["offsets"][i])
+            width = int(acc["offsets"][i + 1]) - start
+            acc["counts"][start : start + width] += np.bincount(sub, minlength=width)
 
     def merge(self, a: dict, b: dict) -> dict:
         for name, acc in a.items():
@@ -364,6 +403,60 @@ def run_local(source: Source, task) -> object:
             state = task.add(state, batch, part)
         merged = state if merged is None else task.merge(merged, state)
     return merged
+
+
+class LocalRunner:
+    """Runs passes in this process. A CSV is parsed once: the first pass also writes the parsed
+    rows (group index and float columns) to a temporary Arrow IPC file that later passes read
+    instead, deleted when the summaries are gone."""
+
+    def __init__(self):
+        self.spill: Source | None = None
+        self._folder: str | None = None
+
+    def __call__(self, source: Source, task) -> object:
+        if not (isinstance(task, DiscoverTask) and source.kind == "csv"):
+            return run_local(source, task)
+        import tempfile
+
+        from .source import write_spill
+
+        if self._folder is None:
+            self._folder = tempfile.mkdtemp(prefix="sitebuild-stream-")
+        path = f"{self._folder}/rows.arrow"
+        state = task.start(0)
+        holder = {"state": state}
+
+        def parsed():
+            for batch in batches(source, 0):
+                holder["state"] = task.add(holder["state"], batch, 0)
+                index = holder["state"].index
+                lookup = np.array(
+                    [index.get(label, -1) if label is not None else -1 for label in batch.labels]
+                    + [-1],
+                    dtype=np.int32,
+                )
+                yield lookup[batch.label_index], batch.columns
+
+        write_spill(path, parsed())
+        state = holder["state"]
+        self.spill = Source(
+            kind="spill",
+            parts=(path,),
+            group=source.group,
+            numeric=source.numeric,
+            file=source.file,
+            labels=tuple(state.labels),
+        )
+        return state
+
+    def cleanup(self) -> None:
+        """Delete the temporary spill file."""
+        if self._folder is not None:
+            import shutil
+
+            shutil.rmtree(self._folder, ignore_errors=True)
+            self._folder = None
 
 
 @dataclass
@@ -775,7 +868,7 @@ def _large_summary(every: Moments, label, level, at: dict, within, acc, missing,
 def pivots_of(source: Source) -> tuple[float, ...]:
     """Return one value near the data per numeric column: the median of the first batch's
     first 1,001 finite values (0 when there are none)."""
-    first = next(batches(source, 0, batch_rows=65536), None)
+    first = next(batches(source, 0, batch_rows=65536, block_bytes=1 << 20), None)
     out = []
     for name in source.numeric:
         values = first.columns[name] if first is not None else np.zeros(0)
@@ -804,7 +897,7 @@ def discover(spec, source: Source, runner: Runner, seed) -> tuple[Discovery, Sou
         return runner(source, task), source
 
 
-def read_streamed(spec, rng: np.random.Generator | None = None, runner: Runner = run_local,
+def read_streamed(spec, rng: np.random.Generator | None = None, runner: Runner | None = None,
                   engine: str = "stream"):  # fmt: skip
     """Return a :class:`sitebuild.ingest.Table` whose rows are a bounded seeded sample and whose
     ``exact`` field is a :class:`Streamed` summary of every row."""
@@ -817,7 +910,11 @@ def read_streamed(spec, rng: np.random.Generator | None = None, runner: Runner =
 
         rng = np.random.default_rng(zlib.crc32(spec.name.encode("utf-8")))
     seed = [int(s) for s in rng.integers(0, 2**32, size=2)]
+    runner = runner or LocalRunner()
     state, source = discover(spec, source, runner, seed)
+    scan_source = source
+    if isinstance(runner, LocalRunner) and runner.spill is not None:
+        scan_source = runner.spill
     groups_count = len(state.labels)
     order = sorted(range(groups_count), key=lambda i: natural_key(state.labels[i]))
     new_code = np.empty(groups_count, dtype=np.int32)
@@ -831,7 +928,7 @@ def read_streamed(spec, rng: np.random.Generator | None = None, runner: Runner =
     rows_used = state.rows_read - state.dropped
     label_code = {label: int(new_code[i]) for i, label in enumerate(state.labels)}
     streamed = Streamed(
-        source=source,
+        source=scan_source,
         groups=groups,
         label_code=label_code,
         moments=moments,
@@ -866,6 +963,8 @@ def read_streamed(spec, rng: np.random.Generator | None = None, runner: Runner =
         warnings=tuple(warnings),
     )
     streamed.missing_by_group.update(_missing_by_group(state, index, groups_count))
+    if isinstance(runner, LocalRunner):
+        weakref.finalize(streamed, runner.cleanup)
     return Table(
         spec=spec,
         groups=groups,

@@ -43,6 +43,60 @@ class Grouped:
 
 
 @dataclass
+class Rows:
+    """One batch's rows put in group order once (stable), shared by every column's pieces.
+
+    Columns are passed already arranged (``arrange``) and may hold NaN for missing values;
+    sums skip them by adding zeros, so one sort serves all columns of the batch.
+    """
+
+    order: np.ndarray
+    starts: np.ndarray  # start of every non-empty group
+    present: np.ndarray  # the non-empty groups
+    size: np.ndarray  # rows per group (all groups)
+    groups: int
+
+    @classmethod
+    def of(cls, codes: np.ndarray, groups: int) -> Rows:
+        order = np.argsort(codes, kind="stable")
+        size = np.bincount(codes, minlength=groups).astype(np.int64)
+        present = np.flatnonzero(size)
+        starts = np.concatenate([[0], np.cumsum(size)])[present]
+        return cls(order, starts, present, size, groups)
+
+    def arrange(self, x: np.ndarray) -> np.ndarray:
+        return x[self.order]
+
+    def sums(self, x: np.ndarray) -> np.ndarray:
+        """Per present group, the sum of ``x`` (arranged), pairwise-summed by add.reduceat."""
+        if not self.present.size:
+            return np.zeros(0)
+        return np.add.reduceat(x, self.starts)
+
+    def spread(self, per_present: np.ndarray) -> np.ndarray:
+        return np.repeat(per_present, self.size[self.present])
+
+    def slices(self):
+        """Yield (group, start, stop) of every non-empty group."""
+        ends = self.starts + self.size[self.present]
+        yield from zip(self.present.tolist(), self.starts.tolist(), ends.tolist(), strict=True)
+
+
+def _centred(rows: Rows, v: np.ndarray, ok: np.ndarray, pivot: float):
+    """Return (count, mean of v - pivot, deviations with zeros where not ok) per present group."""
+    n = rows.sums(ok.astype(np.float64))
+    safe = np.maximum(n, 1.0)
+    shifted = np.where(ok, v - pivot, 0.0)
+    mean = rows.sums(shifted) / safe
+    d = np.where(ok, shifted - rows.spread(mean), 0.0)
+    # A second pass removes the rounding left in the first mean (Chan, Golub & LeVeque 1983).
+    correction = rows.sums(d) / safe
+    mean += correction
+    d = np.where(ok, d - rows.spread(correction), 0.0)
+    return n, mean, d
+
+
+@dataclass
 class Moments:
     """Per-group count, mean and sums of powers of deviations M2, M3, M4, plus min and max.
 
@@ -78,33 +132,34 @@ class Moments:
 
     @classmethod
     def of(cls, values: np.ndarray, codes: np.ndarray, groups: int, pivot: float = 0.0) -> Moments:
-        """Return the moments of one batch: finite ``values`` with group ``codes``.
+        """Return the moments of one batch: ``values`` (NaN = missing) with group ``codes``."""
+        rows = Rows.of(codes, groups)
+        return cls.from_rows(rows, rows.arrange(values), pivot)
+
+    @classmethod
+    def from_rows(cls, rows: Rows, values: np.ndarray, pivot: float = 0.0) -> Moments:
+        """Return the moments of one batch whose ``values`` are arranged by ``rows``.
 
         Notes
         -----
         Two passes inside the batch (mean, then centred powers) with a correction of the mean
-        by the mean of the deviations, so a large common offset costs no precision.
+        by the mean of the deviations, so a large common offset costs no precision; sums are
+        pairwise (numpy's reduction), so their rounding grows like log n, not n.
         """
-        out = cls.empty(groups, pivot)
-        if values.size == 0:
+        out = cls.empty(rows.groups, pivot)
+        if not rows.present.size:
             return out
-        g = Grouped.of(values, codes, groups)
-        shifted = g.values - pivot
-        k = g.present
-        n = g.n[k].astype(np.float64)
-        mean = g.sums(shifted) / n
-        d = shifted - g.spread(mean)
-        correction = g.sums(d) / n
-        mean += correction
-        d -= g.spread(correction)
+        ok = ~np.isnan(values)
+        n, mean, d = _centred(rows, values, ok, pivot)
+        k = rows.present
         d2 = d * d
-        out.n = g.n
+        out.n[k] = n.astype(np.int64)
         out.mean[k] = mean
-        out.m2[k] = g.sums(d2)
-        out.m3[k] = g.sums(d2 * d)
-        out.m4[k] = g.sums(d2 * d2)
-        out.low[k] = np.minimum.reduceat(g.values, g.starts)
-        out.high[k] = np.maximum.reduceat(g.values, g.starts)
+        out.m2[k] = rows.sums(d2)
+        out.m3[k] = rows.sums(d2 * d)
+        out.m4[k] = rows.sums(d2 * d2)
+        out.low[k] = np.minimum.reduceat(np.where(ok, values, np.inf), rows.starts)
+        out.high[k] = np.maximum.reduceat(np.where(ok, values, -np.inf), rows.starts)
         return out
 
     @property
@@ -233,26 +288,26 @@ class CoMoments:
 
         Means are of ``a - pivots[0]`` and ``b - pivots[1]`` (see :class:`Moments`).
         """
-        out = cls.empty(groups)
-        keep = ~(np.isnan(a) | np.isnan(b))
-        if not keep.any():
+        rows = Rows.of(codes, groups)
+        return cls.from_rows(rows, rows.arrange(a), rows.arrange(b), pivots)
+
+    @classmethod
+    def from_rows(cls, rows: Rows, a, b, pivots=(0.0, 0.0)) -> CoMoments:
+        """Return the co-moments of a batch whose columns are arranged by ``rows``."""
+        out = cls.empty(rows.groups)
+        if not rows.present.size:
             return out
-        codes = codes[keep]
-        order = np.argsort(codes, kind="stable")
-        g = Grouped.of(np.arange(codes.size), codes, groups)
-        k = g.present
-        n = g.n[k].astype(np.float64)
-        centred = []
-        for v, pivot in ((a[keep][order], pivots[0]), (b[keep][order], pivots[1])):
-            shifted = v - pivot
-            mean = g.sums(shifted) / n
-            d = shifted - g.spread(mean)
-            correction = g.sums(d) / n
-            centred.append((mean + correction, d - g.spread(correction)))
-        (mean_a, da), (mean_b, db) = centred
-        out.n = g.n
+        ok = ~(np.isnan(a) | np.isnan(b))
+        n, mean_a, da = _centred(rows, a, ok, pivots[0])
+        _, mean_b, db = _centred(rows, b, ok, pivots[1])
+        k = rows.present
+        out.n[k] = n.astype(np.int64)
         out.mean_a[k], out.mean_b[k] = mean_a, mean_b
-        out.m2a[k], out.m2b[k], out.c[k] = g.sums(da * da), g.sums(db * db), g.sums(da * db)
+        out.m2a[k], out.m2b[k], out.c[k] = (
+            rows.sums(da * da),
+            rows.sums(db * db),
+            rows.sums(da * db),
+        )
         return out
 
     def grow(self, groups: int) -> CoMoments:
@@ -317,22 +372,25 @@ class Extremes:
 
     @classmethod
     def of(cls, values: np.ndarray, codes: np.ndarray, groups: int, k: int) -> Extremes:
-        """Return the extremes of one batch of finite values."""
-        out = cls.empty(groups, k)
-        if values.size == 0:
-            return out
-        order = np.lexsort((values, codes))
-        v, c = values[order], codes[order]
-        bounds = np.searchsorted(c, np.arange(groups + 1))
-        # Rank within group from the front and the back, without a loop over rows.
-        start = bounds[c]
-        end = bounds[c + 1]
-        rank = np.arange(v.size) - start
-        back = end - 1 - np.arange(v.size)
-        front = rank < k
-        out.small[c[front], rank[front]] = v[front]
-        tail = back < k
-        out.large[c[tail], k - 1 - back[tail]] = v[tail]
+        """Return the extremes of one batch (NaN values are left out)."""
+        rows = Rows.of(codes, groups)
+        return cls.from_rows(rows, rows.arrange(values), k)
+
+    @classmethod
+    def from_rows(cls, rows: Rows, values: np.ndarray, k: int) -> Extremes:
+        """Return the extremes of a batch whose ``values`` are arranged by ``rows``."""
+        out = cls.empty(rows.groups, k)
+        # One partition per group (a loop over groups, not rows): O(rows) per batch.
+        for group, start, stop in rows.slices():
+            chunk = values[start:stop]
+            chunk = chunk[~np.isnan(chunk)]
+            if chunk.size <= k:
+                ordered = np.sort(chunk)
+                out.small[group, : ordered.size] = ordered
+                out.large[group, k - ordered.size :] = ordered
+                continue
+            out.small[group] = np.sort(np.partition(chunk, k - 1)[:k])
+            out.large[group] = np.sort(np.partition(chunk, chunk.size - k)[chunk.size - k :])
         return out
 
     def grow(self, groups: int) -> Extremes:
@@ -404,6 +462,23 @@ class Sample:
 
     def merge(self, other: Sample) -> Sample:
         return self.add(other.keys, other.codes, other.rows, other.columns)
+
+    def add_rows(self, rows: Rows, keys, codes, numbers, columns) -> Sample:
+        """Like :meth:`add` for a batch arranged by ``rows``: only each group's k smallest
+        keys of the batch are candidates, found by one partition per group."""
+        chosen = []
+        for _, start, stop in rows.slices():
+            if stop - start <= self.k:
+                chosen.append(np.arange(start, stop))
+            else:
+                part = np.argpartition(keys[start:stop], self.k - 1)[: self.k]
+                chosen.append(start + part)
+        if not chosen:
+            return self
+        pick = np.concatenate(chosen)
+        return self.add(
+            keys[pick], codes[pick], numbers[pick], {n: v[pick] for n, v in columns.items()}
+        )
 
     def _limits(self, groups: int) -> np.ndarray:
         limit = np.full(groups, np.inf)

@@ -48,6 +48,7 @@ class Source:
     encoding: str = "utf-8"
     header: tuple[str, ...] = ()
     warnings: tuple[str, ...] = field(default=(), compare=False)
+    labels: tuple[str, ...] = ()  # kind "spill": the label of each stored group index
 
     @property
     def decimal_comma(self) -> bool:
@@ -234,7 +235,7 @@ def _short_rows_batch(rows: list[str], source: Source):
     return pa.table(data)
 
 
-def _csv_tables(source: Source, batch_rows: int) -> Iterator:
+def _csv_tables(source: Source, batch_rows: int, block_bytes: int = CSV_BLOCK_BYTES) -> Iterator:
     import pyarrow as pa
     import pyarrow.csv as pacsv
 
@@ -252,7 +253,7 @@ def _csv_tables(source: Source, batch_rows: int) -> Iterator:
     encoding = "utf8" if source.encoding.startswith("utf-8") else source.encoding
     reader = pacsv.open_csv(
         source.parts[0],
-        read_options=pacsv.ReadOptions(encoding=encoding, block_size=CSV_BLOCK_BYTES),
+        read_options=pacsv.ReadOptions(encoding=encoding, block_size=block_bytes),
         parse_options=pacsv.ParseOptions(delimiter=source.delimiter, invalid_row_handler=invalid),
         convert_options=pacsv.ConvertOptions(
             include_columns=list(names),
@@ -287,10 +288,15 @@ def _parquet_tables(path: str, source: Source, batch_rows: int) -> Iterator:
     yield from handle.iter_batches(batch_size=batch_rows, columns=[source.group, *source.numeric])
 
 
-def batches(source: Source, part: int, batch_rows: int = BATCH_ROWS) -> Iterator[Batch]:
+def batches(
+    source: Source, part: int, batch_rows: int = BATCH_ROWS, block_bytes: int = CSV_BLOCK_BYTES
+) -> Iterator[Batch]:
     """Yield the rows of one part of ``source`` as :class:`Batch` objects, in file order."""
+    if source.kind == "spill":
+        yield from _spill_batches(source)
+        return
     if source.kind == "csv":
-        tables = _csv_tables(source, batch_rows)
+        tables = _csv_tables(source, batch_rows, block_bytes)
     else:
         tables = _parquet_tables(source.parts[part], source, batch_rows)
     text = source.kind == "csv"
@@ -307,3 +313,41 @@ def batches(source: Source, part: int, batch_rows: int = BATCH_ROWS) -> Iterator
                 problems[name] = problem
         yield Batch(labels, index, columns, problems, first)
         first += table.num_rows
+
+
+def _spill_batches(source: Source) -> Iterator[Batch]:
+    """Yield the batches of a spill file (group index + float columns, Arrow IPC)."""
+    import pyarrow as pa
+
+    labels = list(source.labels)
+    first = 0
+    with pa.memory_map(source.parts[0]) as handle:
+        reader = pa.ipc.open_file(handle)
+        for i in range(reader.num_record_batches):
+            record = reader.get_batch(i)
+            index = record.column(0).to_numpy()
+            columns = {n: record.column(j + 1).to_numpy() for j, n in enumerate(source.numeric)}
+            yield Batch(labels, index, columns, {}, first)
+            first += record.num_rows
+
+
+def write_spill(path: str, batches_with_codes) -> None:
+    """Write (group index array, {column: float array}) pairs to an Arrow IPC file."""
+    import pyarrow as pa
+
+    writer = None
+    try:
+        for codes, columns in batches_with_codes:
+            record = pa.record_batch(
+                [
+                    pa.array(codes, pa.int32()),
+                    *(pa.array(v, pa.float64()) for v in columns.values()),
+                ],
+                names=["group index", *columns],
+            )
+            if writer is None:
+                writer = pa.ipc.new_file(path, record.schema)
+            writer.write_batch(record)
+    finally:
+        if writer is not None:
+            writer.close()
