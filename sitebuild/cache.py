@@ -18,7 +18,7 @@ from pathlib import Path
 from . import __version__
 
 CACHE_DIR = ".sitebuild_cache"
-FORMAT = 1
+FORMAT = 2
 # Site settings that only change how pages look, not any number: excluded from dataset keys.
 PRESENTATION_SETTINGS = frozenset({"title", "output", "history"})
 
@@ -97,46 +97,55 @@ class Cache:
 
     def load(self, kind: str, key: str):
         """Return the payload stored under ``key``, or None when absent, corrupt or foreign."""
+        found = self.load_checked(kind, key)
+        return None if found is None else found[0]
+
+    def load_checked(self, kind: str, key: str):
+        """Return (payload, checksum) stored under ``key``, or None when absent, corrupt or
+        foreign. An entry is one header line of JSON, then the payload as canonical JSON; the
+        checksum is the payload text's SHA-256, checked before the payload is parsed."""
         if not self.enabled:
             return None
         path = self._entry(kind, key)
         try:
-            entry = json.loads(path.read_text(encoding="utf-8"))
+            raw = path.read_bytes()
         except FileNotFoundError:
             return None
-        except (OSError, ValueError):
+        except OSError:
             self.notices.append(f"cache entry {path.name} was unreadable; recomputed it")
             return None
-        if not isinstance(entry, dict) or "payload" not in entry:
+        head, newline, body = raw.partition(b"\n")
+        try:
+            header = json.loads(head) if newline else None
+        except ValueError:
+            header = None
+        if not isinstance(header, dict) or header.get("format") != FORMAT:
             self.notices.append(f"cache entry {path.name} is not ours; recomputed it")
             return None
-        payload = entry["payload"]
-        checksum = hashlib.sha256(canonical(payload).encode("utf-8")).hexdigest()
-        if (
-            entry.get("format") != FORMAT
-            or entry.get("key") != key
-            or entry.get("checksum") != checksum
-        ):
+        checksum = hashlib.sha256(body).hexdigest()
+        if header.get("key") != key or header.get("checksum") != checksum:
             self.notices.append(f"cache entry {path.name} failed its checksum; recomputed it")
             return None
-        return payload
-
-    def store(self, kind: str, key: str, payload) -> None:
-        """Keep ``payload`` (JSON-ready) under ``key``; a cache that cannot be written is skipped."""
-        text = canonical(payload)
-        entry = {
-            "format": FORMAT,
-            "key": key,
-            "checksum": hashlib.sha256(text.encode("utf-8")).hexdigest(),
-            "payload": payload,
-        }
         try:
-            _atomic_write(self._entry(kind, key), canonical(entry).encode("utf-8"))
+            return json.loads(body.decode("utf-8")), checksum
+        except ValueError:
+            self.notices.append(f"cache entry {path.name} was unreadable; recomputed it")
+            return None
+
+    def store(self, kind: str, key: str, payload) -> str:
+        """Keep ``payload`` (JSON-ready) under ``key`` and return its checksum; a cache that
+        cannot be written is skipped with a notice."""
+        body = canonical(payload).encode("utf-8")
+        checksum = hashlib.sha256(body).hexdigest()
+        header = canonical({"format": FORMAT, "key": key, "checksum": checksum})
+        try:
+            _atomic_write(self._entry(kind, key), header.encode("utf-8") + b"\n" + body)
         except OSError as exc:
             self.notices.append(
                 f"could not write the cache in {self.root} ({exc.strerror}); "
                 "the next build will recompute"
             )
+        return checksum
 
     # -- the chart script -----------------------------------------------------------------
     def chart_bundle(self, make) -> bytes:

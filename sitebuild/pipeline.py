@@ -324,7 +324,7 @@ def build(
     as one HTML file at those paths; ``progress`` is True (lines to stderr) or a function
     taking one line of text; ``quiet`` silences progress.
     """
-    from .changes import compare, core, extend_history, results_digest
+    from .changes import compare, core, extend_history
     from .site import publish
     from .site.render import build_time
 
@@ -353,14 +353,16 @@ def build(
         ) from None
     notices: list[str] = []
     with publish.Lock(target):
-        datasets, reports = [], []
+        datasets, reports, checksums = [], [], []
         for spec in manifest.datasets:
             with timer.stage("cache"):
                 sha = file_digest(spec.path)
                 key = dataset_key(sha, spec, manifest.site)
-                ds = cache.load("results", key)
-            if ds is not None and ds.get("source", {}).get("sha256") == sha:
+                found = cache.load_checked("results", key)
+            if found is not None and found[0].get("source", {}).get("sha256") == sha:
+                ds, checksum = found
                 datasets.append(ds)
+                checksums.append(checksum)
                 reports.append(_report_from_results(ds, reused=True))
                 if say:
                     say(f"{spec.name}: unchanged, results reused")
@@ -377,15 +379,22 @@ def build(
             ds = clean(analyse(table, manifest, timer, say))
             # Through JSON and back, so fresh and cached results are the very same data.
             ds = json.loads(canonical(ds))
-            cache.store("results", key, ds)
+            checksums.append(cache.store("results", key, ds))
             datasets.append(ds)
             reports.append(_dataset_report(table))
         computed = {"tool_version": __version__, "site": site_block(manifest), "datasets": datasets}
         previous, notice = previous_results(target)
         if notice:
             notices.append(notice)
-        computed_id = results_digest(computed)
-        numbers_changed = previous is None or results_digest(previous) != computed_id
+        # Equal data compare equal without encoding them again (both came through JSON).
+        numbers_changed = previous is None or core(previous) != computed
+        # Identifies the computed numbers for the render key: each dataset's payload checksum
+        # stands for its results, so nothing large is encoded on a no-op rebuild.
+        computed_id = hashlib.sha256(
+            canonical({"head": core({**computed, "datasets": []}), "datasets": checksums}).encode(
+                "utf-8"
+            )
+        ).hexdigest()
         if not numbers_changed and "changes" in previous and "history" in previous:
             # Nothing computed moved: the site keeps saying what moved at the last real change.
             changes, history = previous["changes"], previous["history"]

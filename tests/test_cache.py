@@ -129,9 +129,10 @@ def test_corrupted_entry_fails_its_checksum_and_is_recomputed(project):
     assert len(entries) == 2
     # Change one number inside a stored payload but keep the JSON valid.
     for path in entries:
-        entry = json.loads(path.read_text(encoding="utf-8"))
-        entry["payload"]["source"]["rows_used"] += 1
-        path.write_text(json.dumps(entry), encoding="utf-8")
+        header, payload = path.read_text(encoding="utf-8").split("\n", 1)
+        payload = json.loads(payload)
+        payload["source"]["rows_used"] += 1
+        path.write_text(header + "\n" + json.dumps(payload), encoding="utf-8")
     report = build(project)
     assert report.reused == ()
     assert any("checksum" in n for n in report.notices)
