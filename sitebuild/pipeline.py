@@ -397,7 +397,7 @@ def build(
         ).hexdigest()
         if not numbers_changed and "changes" in previous and "history" in previous:
             # Nothing computed moved: the site keeps saying what moved at the last real change.
-            changes, history = previous["changes"], previous["history"]
+            changes, history = previous["changes"], previous["history"][-manifest.site.history :]
         else:
             changes = compare(previous and core(previous), computed)
             history = extend_history(previous, computed, manifest.site.history, build_time())
