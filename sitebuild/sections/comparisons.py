@@ -64,6 +64,8 @@ SD_RATIO_LIMIT = 2.0
 SIZE_RATIO_LIMIT = 1.5
 SMALL_GROUP = 30
 FEW_ROWS = 10
+# Values beyond this magnitude (or below its inverse) cannot be squared safely in float64.
+SCALE_LIMIT = 1e150
 
 TEST_ANOVA = "one-way ANOVA"
 TEST_WELCH = "Welch's ANOVA"
@@ -372,6 +374,19 @@ def _measure_entry(
     excluded: list[dict] = []
     keep: list[int] = []
     samples_all = [Sample.of(v) for v in arrays]
+    sizes = [float(np.max(np.abs(v))) for v in arrays if v.size]
+    biggest = max(sizes, default=0.0)
+    if biggest > SCALE_LIMIT or 0 < biggest < 1 / SCALE_LIMIT:
+        # Squares of such values overflow or vanish in double precision, so variances and
+        # every test built on them would be meaningless; say so rather than print nonsense.
+        reason = (
+            f"the values of '{measure}' are too {'large' if biggest > 1 else 'small'} "
+            f"(largest magnitude {biggest:.3g}) for sums of squares in double precision; "
+            "express the measure in other units to compare groups"
+        )
+        entry = _empty_entry(measure, reason, [], _group_rows(groups, samples_all))
+        entry["findings"] = findings_mod.measure_findings(entry, settings)
+        return entry
     for i, s in enumerate(samples_all):
         if s.n < 2:
             excluded.append(
