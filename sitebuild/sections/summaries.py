@@ -243,6 +243,14 @@ TABLE_COLUMNS = (
 )  # fmt: skip
 
 
+def _engine_caption(ds: dict) -> str:
+    """Say on the page which numbers use every row and which a sample (streamed engines)."""
+    source = ds.get("computed_from") or {}
+    if source.get("engine", "memory") == "memory":
+        return ""
+    return " " + source["note"]
+
+
 def tables(ds: dict, settings: SiteSettings) -> list[DataTable]:
     """Return one summary table per measure (all groups, then all rows combined)."""
     out = []
@@ -263,7 +271,7 @@ def tables(ds: dict, settings: SiteSettings) -> list[DataTable]:
                 caption=(
                     f"CI: {settings.confidence:.0%} interval for the mean (Student's t). Median CI: "
                     "distribution-free interval from order statistics. Quartiles by linear "
-                    "interpolation (Hyndman & Fan type 7)."
+                    "interpolation (Hyndman & Fan type 7)." + _engine_caption(ds)
                 ),
             )
         )

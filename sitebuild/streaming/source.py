@@ -32,7 +32,7 @@ from ..ingest import (
 from ..manifest import DatasetSpec
 
 BATCH_ROWS = 1 << 20  # rows per record batch: bounds the memory of every pass
-CSV_BLOCK_BYTES = 1 << 26  # bytes of CSV text parsed at a time (about a million short rows)
+CSV_BLOCK_BYTES = 1 << 25  # bytes of CSV text parsed at a time (about 850,000 short rows)
 
 
 @dataclass(frozen=True)
