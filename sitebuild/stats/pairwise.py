@@ -24,7 +24,7 @@ EXACT_MAX_N = 50
 # The k-th pairwise difference is found by shrinking a bracket until at most this many
 # candidate differences remain, which are then listed and partitioned.
 _ENUMERATE_LIMIT = 1_000_000
-_SAMPLE_SIZE = 262_144
+_SAMPLE_SIZE = 131_072
 # Sample quantiles are taken this many standard errors either side of the target rank.
 _MARGIN_SE = 3.0
 
@@ -270,6 +270,14 @@ def _padded(ys: np.ndarray) -> np.ndarray:
     return np.concatenate([[-np.inf], ys, [np.inf]])
 
 
+def _sample_indices(k_lo: int, k_hi: int, below: int, total: int, s: int) -> tuple[int, int]:
+    """Sample order statistics just outside the target ranks (a few standard errors)."""
+    f_lo, f_hi = (k_lo - below) / total, (k_hi - below) / total
+    lo_i = int(math.floor(f_lo * s - _MARGIN_SE * math.sqrt(s * f_lo * (1 - f_lo)) - 3))
+    hi_i = int(math.ceil(f_hi * s + _MARGIN_SE * math.sqrt(s * f_hi * (1 - f_hi)) + 3))
+    return lo_i, hi_i
+
+
 def _shrink(
     xs: np.ndarray,
     ys: np.ndarray,
@@ -280,19 +288,19 @@ def _shrink(
     below: int,
     raw: np.ndarray,
     total: int,
+    partitioned: bool = False,
 ) -> tuple[np.ndarray, np.ndarray, int, float | None]:
     """One round: new row bounds from quantiles of the (unsorted) sample ``raw`` of candidate
-    differences, just outside ranks k_lo..k_hi.
+    differences, just outside ranks k_lo..k_hi. ``partitioned``: ``raw`` is already
+    partitioned at the indices _sample_indices gives for this cluster.
 
     Returns (a, b, below, value) where value is set when every candidate left is one value.
     """
     n = ys.size - 2
     s = raw.size
-    f_lo, f_hi = (k_lo - below) / total, (k_hi - below) / total
-    lo_i = int(math.floor(f_lo * s - _MARGIN_SE * math.sqrt(s * f_lo * (1 - f_lo)) - 3))
-    hi_i = int(math.ceil(f_hi * s + _MARGIN_SE * math.sqrt(s * f_hi * (1 - f_hi)) + 3))
+    lo_i, hi_i = _sample_indices(k_lo, k_hi, below, total, s)
     wanted = [i for i in (lo_i, hi_i) if 0 <= i < s]
-    vals = np.partition(raw, wanted) if wanted else raw
+    vals = raw if partitioned or not wanted else np.partition(raw, wanted)
     lo = hi = None
     if lo_i >= 0:
         lo = float(vals[lo_i])
@@ -423,11 +431,23 @@ def kth_pairwise_differences(
         # One shared first sample of random pairs brackets every cluster of ranks.
         s = _SAMPLE_SIZE
         raw = xs[gen.integers(0, m, size=s)] - ys[gen.integers(0, n, size=s) + 1]
+        wanted = sorted(
+            {
+                i
+                for g in clusters
+                for i in _sample_indices(min(g), max(g), 0, total, s)
+                if 0 <= i < s
+            }
+        )
+        if wanted:
+            raw = np.partition(raw, wanted)  # one partition serves every cluster
     found: dict[int, float] = {}
     for group in clusters:
         ca, cb, cbelow = a, b, 0
         if raw is not None:
-            ca, cb, cbelow, same = _shrink(xs, ys, min(group), max(group), a, b, 0, raw, total)
+            ca, cb, cbelow, same = _shrink(
+                xs, ys, min(group), max(group), a, b, 0, raw, total, partitioned=True
+            )
             if same is not None:
                 found.update((k, same) for k in group)
                 continue
