@@ -53,7 +53,7 @@ def test_findings_name_order_differences_intervals_and_rule_of_thumb():
     text = measure_findings(_entry(pairs), SiteSettings())
     joined = " ".join(text)
     assert "By mean, highest first: 'A' (3), 'C' (2), 'B' (1)." in text
-    assert "'A' is higher than 'B' by 2 in mean (95% CI 1.5 to 2.5)" in joined
+    assert "'A' is higher than 'B' by 2 on average (95% CI 1.5 to 2.5)" in joined
     assert "large by common rules of thumb" in joined
     assert "'B' and 'C' are equivalent within ±0.5" in joined
     assert "inconclusive" in joined and "too few rows (the smaller group has 5)" in joined
@@ -71,6 +71,12 @@ def test_findings_report_disagreement_between_lead_and_sensitivity_tests():
         measure_findings(_entry([_pair("A", "B")], (0.001, 0.002, 0.003)), SiteSettings())
     )
     assert "does not agree" not in agree
+
+
+def test_lower_by_is_said_with_the_interval_of_the_gap():
+    low = _pair("B", "A", estimate=-2.0, ci_low=-2.5, ci_high=-1.5)
+    text = " ".join(measure_findings(_entry([low]), SiteSettings()))
+    assert "'B' is lower than 'A' by 2 on average (95% CI 1.5 to 2.5)" in text
 
 
 def test_not_significant_is_not_called_no_difference():

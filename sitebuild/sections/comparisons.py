@@ -191,7 +191,7 @@ def _choose_lead(group_rows: list[dict], spread_row: dict, alpha: float) -> tupl
     reasons = []
     if spread_row["p"] is not None and spread_row["p"] < alpha:
         reasons.append(
-            f"the Brown–Forsythe test finds unequal spread (p = {_fmt_p(spread_row['p'])})"
+            f"the Brown–Forsythe test finds unequal spread ({findings_mod.p_phrase(spread_row['p'])})"
         )
     ratio = max(sds) / min(sds) if min(sds) > 0 else math.inf
     if ratio > SD_RATIO_LIMIT:
@@ -210,13 +210,9 @@ def _choose_lead(group_rows: list[dict], spread_row: dict, alpha: float) -> tupl
         )
     return TEST_ANOVA, (
         "The one-way ANOVA leads: the groups have similar spread (Brown–Forsythe "
-        f"p = {_fmt_p(spread_row['p'])}, largest to smallest SD {ratio:.1f}), similar sizes and "
+        f"{findings_mod.p_phrase(spread_row['p'])}, largest to smallest SD {ratio:.1f}), similar sizes and "
         "no strong skew, so the classic test's assumptions look reasonable."
     )
-
-
-def _fmt_p(p: float | None) -> str:
-    return findings_mod.format_p(p)
 
 
 def _pair_record(

@@ -55,7 +55,14 @@ def format_num(x: float | None) -> str:
     return f"{x:.3g}"
 
 
-def _p_phrase(p: float | None) -> str:
+def p_phrase(p: float | None) -> str:
+    """Return 'p < 0.001' or 'p = 0.0432'.
+
+    Examples
+    --------
+    >>> p_phrase(0.5)
+    'p = 0.5'
+    """
     text = format_p(p)
     return f"p {text}" if text.startswith("<") else f"p = {text}"
 
@@ -70,11 +77,15 @@ def _pair_name(r: dict) -> str:
 
 def _difference_sentence(r: dict, confidence: float) -> str:
     est, lo, hi = r.get("estimate"), r.get("ci_low"), r.get("ci_high")
-    word = "higher" if (est or 0) > 0 else "lower"
-    what = (
-        "median shift (Hodges–Lehmann)"
+    higher = (est or 0) > 0
+    word = "higher" if higher else "lower"
+    # The interval is of a − b; said as "lower by", it is shown as the size of the gap.
+    if lo is not None and hi is not None and not higher:
+        lo, hi = -hi, -lo
+    how = (
+        "as a typical shift (Hodges–Lehmann)"
         if r.get("estimate_name", "").startswith("Hodges")
-        else "mean"
+        else "on average"
     )
     interval = (
         f" ({confidence:.0%} CI {format_num(lo)} to {format_num(hi)})"
@@ -88,8 +99,8 @@ def _difference_sentence(r: dict, confidence: float) -> str:
         else ""
     )
     return (
-        f"'{r['a']}' is {word} than '{r['b']}' by {format_num(abs(est or 0))} in {what}"
-        f"{interval}{eff} (adjusted {_p_phrase(r.get('p_adjusted'))})."
+        f"'{r['a']}' is {word} than '{r['b']}' by {format_num(abs(est or 0))} {how}"
+        f"{interval}{eff} (adjusted {p_phrase(r.get('p_adjusted'))})."
     )
 
 
@@ -135,11 +146,11 @@ def measure_findings(entry: dict, settings) -> list[str]:
         if lead.get("effect") is not None
         else ""
     )
-    out.append(f"By {lead['test']}, {verdict} ({_p_phrase(lead['p'])}){eff}.")
+    out.append(f"By {lead['test']}, {verdict} ({p_phrase(lead['p'])}){eff}.")
     others = [o for o in entry["omnibus"] if o is not lead and o["p"] is not None]
     disagree = [o for o in others if (o["p"] < alpha) != lead_sig]
     if disagree:
-        names = " and ".join(f"{o['test']} ({_p_phrase(o['p'])})" for o in disagree)
+        names = " and ".join(f"{o['test']} ({p_phrase(o['p'])})" for o in disagree)
         out.append(
             f"The sensitivity check does not agree: {names} reach the other verdict at "
             f"alpha = {alpha:g}. Treat the overall result as borderline and look at the "
@@ -171,7 +182,7 @@ def measure_findings(entry: dict, settings) -> list[str]:
         for r in equivalent[:MAX_LISTED]:
             out.append(
                 f"{_pair_name(r)} are equivalent within ±{format_num(r['margin'])}: the two "
-                f"one-sided tests (adjusted {_p_phrase(r.get('tost_p_adjusted'))}) rule out a "
+                f"one-sided tests (adjusted {p_phrase(r.get('tost_p_adjusted'))}) rule out a "
                 "difference larger than the margin."
             )
         if len(equivalent) > MAX_LISTED:
