@@ -230,7 +230,8 @@ def measure_findings(entry: dict, settings) -> list[str]:
                 default=None,
             )
             out.append(
-                f"{len(plain)} comparison(s) show no clear difference; that is not proof of "
+                f"{_count(len(plain), 'comparison shows', 'comparisons show')} no clear "
+                "difference; that is not proof of "
                 "sameness — with these data only differences of about "
                 f"{format_num(smallest)} or more would have been detected reliably."
             )
@@ -247,6 +248,10 @@ def measure_findings(entry: dict, settings) -> list[str]:
             )
     out.extend(CAUTIONS)
     return out
+
+
+def _count(n: int, one: str, many: str) -> str:
+    return f"{n} {one if n == 1 else many}"
 
 
 def _test_name(key: str) -> str:
