@@ -19,6 +19,7 @@ from . import Chart, DataTable
 
 SCATTER_LIMIT = 5_000  # points shipped per scatter chart
 PAIR_SMOOTH_LIMIT = 50_000  # rows used for the measure-against-measure curvature check
+GROUP_LIMIT = 30  # within-group correlations, smooths and charts for at most this many groups
 METHOD_LABELS = {"pearson": "Pearson r", "spearman": "Spearman rho", "kendall": "Kendall tau-b"}
 
 
@@ -55,14 +56,35 @@ def _scopes(table) -> tuple[np.ndarray, np.ndarray]:
     return order, bounds
 
 
-def _correlations(table, names, settings, rng) -> tuple[list[dict], dict]:
+def chosen_groups(table) -> list[int]:
+    """Return the indices of the groups analysed one by one: all, or the largest GROUP_LIMIT."""
+    n_groups = len(table.groups)
+    if n_groups <= GROUP_LIMIT:
+        return list(range(n_groups))
+    sizes = np.bincount(table.codes, minlength=n_groups)
+    largest = np.argsort(-sizes, kind="stable")[:GROUP_LIMIT]
+    return sorted(int(g) for g in largest)
+
+
+def _correlations(table, names, settings, rng, chosen: list[int]) -> tuple[list[dict], dict]:
     data = np.column_stack([table.values(name) for name in names])
+    # Groups beyond the limit share one extra code whose tables are dropped; all-rows scope
+    # still uses every row.
+    remap = np.full(len(table.groups), len(chosen), dtype=np.int64)
+    remap[chosen] = np.arange(len(chosen))
+    codes = remap[table.codes]
     results = correlation_tables(
-        data, table.codes, len(table.groups), level=settings.confidence, rng=rng
+        data,
+        codes,
+        len(chosen) + (len(chosen) < len(table.groups)),
+        level=settings.confidence,
+        rng=rng,
     )
     out: list[dict] = []
     for result in results:
-        group = None if result.group is None else table.groups[result.group]
+        if result.group is not None and result.group >= len(chosen):
+            continue
+        group = None if result.group is None else table.groups[chosen[result.group]]
         adjusted = adjust_pvalues([c.p for _, _, c in result.pairs], settings.adjust)
         for (i, j, c), p_adj in zip(result.pairs, adjusted, strict=True):
             a, b = names[i], names[j]
@@ -265,8 +287,16 @@ def compute(table, settings, rng: np.random.Generator, partial: dict | None = No
     x_name = spec.x
     measures = [m for m in spec.measures if m != x_name]
     names = list(dict.fromkeys([*spec.measures, *([x_name] if x_name else [])]))
-    groups = list(table.groups)
-    correlations, family = _correlations(table, names, settings, rng)
+    chosen = chosen_groups(table)
+    groups = [table.groups[g] for g in chosen]
+    summarised = None
+    if len(chosen) < len(table.groups):
+        summarised = (
+            f"{len(table.groups):,} groups: correlations, smooths and scatter points within "
+            f"groups are shown for the {len(chosen)} largest groups only; the all-rows figures "
+            "use every row."
+        )
+    correlations, family = _correlations(table, names, settings, rng, chosen)
     pearson_r = {}
     for c in correlations:
         if c["method"] == "pearson":
@@ -285,9 +315,9 @@ def compute(table, settings, rng: np.random.Generator, partial: dict | None = No
             y_all = table.values(measure)
             scopes = [(None, x_all, y_all)]
             xs, ys = x_all[order], y_all[order]
-            for g, label in enumerate(groups):
+            for g in chosen:
                 part = slice(bounds[g], bounds[g + 1])
-                scopes.append((label, xs[part], ys[part]))
+                scopes.append((table.groups[g], xs[part], ys[part]))
             for label, xv, yv in scopes:
                 keep = ~(np.isnan(xv) | np.isnan(yv))
                 xv, yv = xv[keep], yv[keep]
@@ -297,10 +327,14 @@ def compute(table, settings, rng: np.random.Generator, partial: dict | None = No
                 rel, line = _relationship(label, x_name, measure, xv, yv, fit, level, r)
                 relationships.append(rel)
                 linear_fits.append(line)
-            complete = np.flatnonzero(~(np.isnan(x_all) | np.isnan(y_all)))
+            complete = ~(np.isnan(x_all) | np.isnan(y_all))
+            if summarised:
+                complete &= np.isin(table.codes, chosen)
+            complete = np.flatnonzero(complete)
             if not complete.size:
                 continue  # nothing to draw
-            picked = complete[_sample(table.codes[complete], len(groups), SCATTER_LIMIT, rng)]
+            n_codes = len(table.groups)
+            picked = complete[_sample(table.codes[complete], n_codes, SCATTER_LIMIT, rng)]
             scatter.append(
                 {
                     "x": x_name,
@@ -309,7 +343,7 @@ def compute(table, settings, rng: np.random.Generator, partial: dict | None = No
                     "n_shown": int(picked.size),
                     "sampled": bool(picked.size < complete.size),
                     "points": [
-                        {"group": groups[c], "x": _short(a), "y": _short(b)}
+                        {"group": table.groups[c], "x": _short(a), "y": _short(b)}
                         for c, a, b in zip(
                             table.codes[picked].tolist(),
                             x_all[picked].tolist(),
@@ -348,6 +382,7 @@ def compute(table, settings, rng: np.random.Generator, partial: dict | None = No
             "x": x_name,
             "groups": groups,
             "curve_rule": RULE,
+            "summarised": summarised,
         },
     }
 

@@ -81,9 +81,14 @@ def straight_line(x, y, level: float = 0.95) -> StraightLine:
     xbar, ybar = float(x.mean()), float(y.mean())
     dx = x - xbar
     dy = y - ybar
-    sxx = float(dx @ dx)
-    syy = float(dy @ dy)
-    slope = float(dx @ dy) / sxx
+    with np.errstate(over="ignore", under="ignore", invalid="ignore"):
+        sxx = float(dx @ dx)
+        syy = float(dy @ dy)
+        sxy = float(dx @ dy)
+    # Squares that underflow to zero or overflow to infinity leave no usable line.
+    if not (0.0 < sxx < np.inf and np.isfinite(syy) and np.isfinite(sxy)):
+        return replace(empty, reason="the values are too extreme to fit a line in double precision")
+    slope = sxy / sxx
     intercept = ybar - slope * xbar
     rss = max(syy - slope * slope * sxx, 0.0)
     r2 = 1.0 - rss / syy if syy > 0 else None

@@ -317,6 +317,14 @@ def _check(x, y, degree: int) -> tuple[np.ndarray, np.ndarray, str | None]:
         return x, y, f"x takes fewer than {degree + 2} distinct values"
     if y.min() == y.max():
         return x, y, "y has no variation"
+    # Local fits square and raise distances to the fourth power: keep them inside double range.
+    extreme = max(float(np.abs(x).max()), float(np.abs(y).max())) > 1e75
+    if extreme or not float(np.ptp(x)) > 1e-75 * max(1.0, float(np.abs(x).max())):
+        return (
+            x,
+            y,
+            "the values are too extreme (or x spans too small a range) to fit a smooth in double precision",
+        )
     return x, y, None
 
 
