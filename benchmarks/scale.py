@@ -303,7 +303,13 @@ def main(argv: list[str] | None = None) -> int:
     parser.add_argument("--no-floor", action="store_true", help="skip the floor process")
     parser.add_argument("--json", help="write all figures to this file as JSON")
     args = parser.parse_args(argv)
-    results = [run_case(CASES[name], args.profile, not args.no_floor) for name in args.case]
+    results = []
+    for name in args.case:
+        try:
+            results.append(run_case(CASES[name], args.profile, not args.no_floor))
+        except RuntimeError as exc:  # one failed case should not hide the others' figures
+            print(f"  FAILED: {str(exc).splitlines()[-1]}", flush=True)
+            results.append({"case": name, "failed": str(exc)[-2000:]})
     if args.json:
         Path(args.json).write_text(json.dumps(results, indent=1))
     return 0

@@ -321,6 +321,8 @@ def _spill_batches(source: Source) -> Iterator[Batch]:
 
     labels = list(source.labels)
     first = 0
+    if not Path(source.parts[0]).exists():
+        return  # a file with a header and no rows wrote no spill
     with pa.memory_map(source.parts[0]) as handle:
         reader = pa.ipc.open_file(handle)
         for i in range(reader.num_record_batches):
