@@ -384,22 +384,26 @@ def engine_for(spec: DatasetSpec) -> str:
     return "memory"
 
 
-def read_table(spec: DatasetSpec, rng: np.random.Generator | None = None) -> Table:
+def read_table(
+    spec: DatasetSpec, rng: np.random.Generator | None = None, sha256: str | None = None
+) -> Table:
     """Return the dataset as a :class:`Table`, with an :class:`IngestReport` of what happened.
 
     With the "stream" or "dask" engine (see :func:`engine_for`) the Table's rows are a seeded
     sample of at most a fixed number per group, drawn with ``rng`` (default: seeded from the
-    dataset's name), and ``Table.exact`` holds exact summaries of every row.
+    dataset's name), and ``Table.exact`` holds exact summaries of every row. ``sha256``, when
+    the caller has already hashed the file (or folder, see
+    :func:`sitebuild.streaming.source.source_sha256`), saves hashing it a second time.
     """
     engine = engine_for(spec)
     if engine == "stream":
         from .streaming.engine import read_streamed
 
-        return read_streamed(spec, rng)
+        return read_streamed(spec, rng, sha256=sha256)
     if engine == "dask":
         from .engines.dask import read_with_dask
 
-        return read_with_dask(spec, rng)
+        return read_with_dask(spec, rng, sha256=sha256)
     frame, encoding, delimiter, warnings = read_frame(spec)
     rows_read = int(len(frame))
     all_codes, groups = group_codes(frame[spec.group])
@@ -424,7 +428,7 @@ def read_table(spec: DatasetSpec, rng: np.random.Generator | None = None) -> Tab
         warnings = [*warnings, f"{spec.file} has a header but no data rows."]
     report = IngestReport(
         file=spec.file,
-        sha256=file_sha256(spec.path),
+        sha256=sha256 or file_sha256(spec.path),
         rows_read=rows_read,
         rows_used=rows_read - dropped,
         rows_dropped=dropped,

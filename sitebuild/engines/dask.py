@@ -111,6 +111,6 @@ def _close(resources) -> None:
             pass
 
 
-def read_with_dask(spec, rng=None, runner: DaskRunner | None = None):
+def read_with_dask(spec, rng=None, runner: DaskRunner | None = None, sha256: str | None = None):
     """Return the dataset as a Table (a bounded sample plus exact summaries), read by Dask."""
-    return read_streamed(spec, rng, runner=runner or DaskRunner(), engine="dask")
+    return read_streamed(spec, rng, runner=runner or DaskRunner(), engine="dask", sha256=sha256)

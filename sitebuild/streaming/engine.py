@@ -898,7 +898,7 @@ def discover(spec, source: Source, runner: Runner, seed) -> tuple[Discovery, Sou
 
 
 def read_streamed(spec, rng: np.random.Generator | None = None, runner: Runner | None = None,
-                  engine: str = "stream"):  # fmt: skip
+                  engine: str = "stream", sha256: str | None = None):  # fmt: skip
     """Return a :class:`sitebuild.ingest.Table` whose rows are a bounded seeded sample and whose
     ``exact`` field is a :class:`Streamed` summary of every row."""
     from ..ingest import Table
@@ -951,7 +951,7 @@ def read_streamed(spec, rng: np.random.Generator | None = None, runner: Runner |
         warnings.append(f"{spec.file} has a header but no data rows.")
     report = IngestReport(
         file=spec.file,
-        sha256=source_sha256(spec.path),
+        sha256=sha256 or source_sha256(spec.path),
         rows_read=state.rows_read,
         rows_used=rows_used,
         rows_dropped=state.dropped,
