@@ -8,7 +8,6 @@ import zipfile
 from pathlib import Path
 
 import pytest
-
 from browser import LAUNCH_ARGS, chromium_path, visit_pages
 from conftest import write_project
 
@@ -81,13 +80,41 @@ def test_hostile_text_never_runs(browser, tmp_path):
     assert_clean(visits)
 
 
-def test_zipped_site_opens_offline_after_unzipping_elsewhere(browser, example_site, tmp_path):
-    archive = tmp_path / "site.zip"
-    with zipfile.ZipFile(archive, "w", zipfile.ZIP_DEFLATED) as z:
-        for path in sorted(example_site.rglob("*")):
-            if path.is_file():
-                z.write(path, path.relative_to(example_site).as_posix())
-    unpacked = tmp_path / "elsewhere" / "unzipped"
+@pytest.fixture(scope="module")
+def handover(tmp_path_factory):
+    """The example project built with --zip and --single-file, as a user would."""
+    from conftest import EXAMPLE
+
+    from sitebuild.cli import main
+
+    work = tmp_path_factory.mktemp("handover")
+    project = work / "project"
+    shutil.copytree(EXAMPLE, project, ignore=shutil.ignore_patterns("site_output", ".sitebuild*"))
+    code = main(
+        ["build", str(project), "--out", str(work / "site"), "--quiet",
+         "--zip", str(work / "mail" / "results.zip"), "--single-file", str(work / "mail" / "results.html")]
+    )  # fmt: skip
+    assert code == 0
+    return work / "mail"
+
+
+def test_zipped_site_opens_offline_after_unzipping_elsewhere(browser, handover, tmp_path):
+    archive = handover / "results.zip"
+    with zipfile.ZipFile(archive) as z:
+        assert z.testzip() is None
+    unpacked = tmp_path / "elsewhere"
     shutil.unpack_archive(archive, unpacked)
-    visits = visit_pages(browser, [p.as_uri() for p in sorted(Path(unpacked).glob("*.html"))])
+    pages = sorted(Path(unpacked).rglob("*.html"))
+    assert any(p.name == "index.html" for p in pages)
+    visits = visit_pages(browser, [p.as_uri() for p in pages])
     assert_clean(visits)
+    assert sum(v.charts for v in visits) >= 40
+
+
+def test_single_file_opens_offline_with_every_chart(browser, handover):
+    single = handover / "results.html"
+    text = single.read_text(encoding="utf-8")
+    assert 'src="assets/' not in text and 'href="assets/' not in text  # nothing beside it needed
+    visits = visit_pages(browser, [single.as_uri()], settle_ms=30000)
+    assert_clean(visits)
+    assert visits[0].charts >= 40
