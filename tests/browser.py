@@ -62,7 +62,10 @@ def visit_pages(browser, urls: list[str], settle_ms: int = 15000) -> list[PageVi
         visit = PageVisit(url=url)
         visits.append(visit)
         page = context.new_page()
-        page.on("console", lambda m, v=visit: v.console_errors.append(m.text) if m.type == "error" else None)
+        page.on(
+            "console",
+            lambda m, v=visit: v.console_errors.append(m.text) if m.type == "error" else None,
+        )
         page.on("pageerror", lambda e, v=visit: v.page_errors.append(str(e)))
 
         def on_dialog(dialog, v=visit):

@@ -8,6 +8,7 @@ import zipfile
 from pathlib import Path
 
 import pytest
+
 from browser import LAUNCH_ARGS, chromium_path, visit_pages
 from conftest import write_project
 
@@ -19,7 +20,9 @@ def browser():
     path = chromium_path()
     if path is None:
         if os.environ.get("CI"):
-            pytest.fail("Chromium is missing: install the Debian package 'chromium' (CI must not skip).")
+            pytest.fail(
+                "Chromium is missing: install the Debian package 'chromium' (CI must not skip)."
+            )
         pytest.skip("Chromium is not installed (set CI=1 to make this a failure)")
     from playwright.sync_api import sync_playwright
 
@@ -54,7 +57,7 @@ def test_hostile_text_never_runs(browser, tmp_path):
 
     hostile = "<img src=x onerror=alert(1)>"
     rows = [f'"{hostile}",{i},{i * 0.5}' for i in range(8)]
-    rows += [f"\"</script><script>alert(2)</script>\",{i},{i}" for i in range(8)]
+    rows += [f'"</script><script>alert(2)</script>",{i},{i}' for i in range(8)]
     rows += [f"javascript:alert(4),{i},{i * 2}" for i in range(8)]
     notes = "# Notes\n\n<script>alert(5)</script>\n\n[click](javascript:alert(6)) <img src=x onerror=alert(7)>\n"
     root = write_project(
@@ -70,7 +73,9 @@ def test_hostile_text_never_runs(browser, tmp_path):
         notes = "notes.md"
         """,
         {
-            "data/d.csv": "\"g\"\"><svg onload=alert(9)>\",v.a[0],w 'quoted'\n" + "\n".join(rows) + "\n",
+            "data/d.csv": '"g""><svg onload=alert(9)>",v.a[0],w \'quoted\'\n'
+            + "\n".join(rows)
+            + "\n",
             "notes.md": notes,
         },
     )
@@ -83,9 +88,9 @@ def test_hostile_text_never_runs(browser, tmp_path):
 @pytest.fixture(scope="module")
 def handover(tmp_path_factory):
     """The example project built with --zip and --single-file, as a user would."""
-    from conftest import EXAMPLE
-
     from sitebuild.cli import main
+
+    from conftest import EXAMPLE
 
     work = tmp_path_factory.mktemp("handover")
     project = work / "project"

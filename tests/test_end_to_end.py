@@ -13,8 +13,9 @@ import numpy as np
 import pandas as pd
 import pytest
 
-from conftest import EXAMPLE
 from sitebuild.results import schema
+
+from conftest import EXAMPLE
 
 
 class Links(HTMLParser):
@@ -53,7 +54,7 @@ def test_every_internal_link_resolves_and_nothing_points_at_the_web(example_site
     assert len(pages) >= 4
     parsed = {p.name: parse(p) for p in pages}
     for page, links in parsed.items():
-        for tag, attr, url in links.refs:
+        for tag, _attr, url in links.refs:
             scheme = urlparse(url).scheme
             if tag in ("script", "link", "img", "iframe", "source", "video", "audio"):
                 assert scheme not in ("http", "https", "//"), f"{page}: {tag} loads {url}"
@@ -84,7 +85,9 @@ def test_tables_are_downloadable_as_csv(example_site):
 
 def reference_frame() -> pd.DataFrame:
     """The growing-trial data read independently with pandas (the reference reader)."""
-    frame = pd.read_csv(EXAMPLE / "data" / "growing_trial.csv", dtype={"mix": str}, keep_default_na=False)
+    frame = pd.read_csv(
+        EXAMPLE / "data" / "growing_trial.csv", dtype={"mix": str}, keep_default_na=False
+    )
     return frame
 
 
@@ -121,11 +124,14 @@ def test_page_reports_what_reading_left_out(example_site):
 
 def test_hostile_labels_stay_text(tmp_path):
     import sitebuild
+
     from conftest import write_project
 
     hostile = "<img src=x onerror=alert(1)>"
-    rows = "\n".join(f'"{hostile}",{i},{i % 3}' for i in range(6)) + "\n" + "\n".join(
-        f"</script><script>alert(2)</script>,{i},{i}" for i in range(6)
+    rows = (
+        "\n".join(f'"{hostile}",{i},{i % 3}' for i in range(6))
+        + "\n"
+        + "\n".join(f"</script><script>alert(2)</script>,{i},{i}" for i in range(6))
     )
     root = write_project(
         tmp_path / "p",
@@ -138,7 +144,7 @@ def test_hostile_labels_stay_text(tmp_path):
         group = "g"
         measures = ["v", "w.x[0]"]
         """,
-        {"data/d.csv": 'g,v,w.x[0]\n' + rows + "\n"},
+        {"data/d.csv": "g,v,w.x[0]\n" + rows + "\n"},
     )
     sitebuild.build(root, out=tmp_path / "site")
     pages = {p.name: p.read_text(encoding="utf-8") for p in (tmp_path / "site").glob("*.html")}

@@ -5,10 +5,11 @@ from __future__ import annotations
 import numpy as np
 import pytest
 
-from conftest import write_project
 from sitebuild.errors import SitebuildError
 from sitebuild.ingest import read_table, sniff_delimiter
 from sitebuild.manifest import load_manifest
+
+from conftest import write_project
 
 MANIFEST = """
 [[datasets]]
@@ -20,14 +21,18 @@ measures = ["v", "w"]
 
 
 def table_for(tmp_path, name: str, content: str | bytes):
-    root = write_project(tmp_path / "p", MANIFEST.format(file=f"data/{name}"), {f"data/{name}": content})
+    root = write_project(
+        tmp_path / "p", MANIFEST.format(file=f"data/{name}"), {f"data/{name}": content}
+    )
     return read_table(load_manifest(root).datasets[0])
 
 
 @pytest.mark.parametrize("delimiter", [",", ";", "\t", "|"])
 def test_delimiter_is_detected(tmp_path, delimiter):
-    text = delimiter.join(["g", "v", "w"]) + "\n" + "\n".join(
-        delimiter.join([g, str(i), str(i * 2)]) for i, g in enumerate("AABB")
+    text = (
+        delimiter.join(["g", "v", "w"])
+        + "\n"
+        + "\n".join(delimiter.join([g, str(i), str(i * 2)]) for i, g in enumerate("AABB"))
     )
     table = table_for(tmp_path, "d.txt", text + "\n")
     assert table.report.delimiter == delimiter

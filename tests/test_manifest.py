@@ -6,9 +6,10 @@ import os
 
 import pytest
 
-from conftest import SIMPLE_CSV, write_project
 from sitebuild.errors import SitebuildError
 from sitebuild.manifest import DEFAULT_OUTPUT, load_manifest
+
+from conftest import SIMPLE_CSV, write_project
 
 
 def manifest_error(tmp_path, text: str, files=None) -> str:
@@ -48,7 +49,9 @@ def test_invalid_toml_names_the_line(tmp_path):
 
 
 def test_unknown_key_suggests_the_closest(tmp_path):
-    message = manifest_error(tmp_path, BASE.replace('group = "line"', 'group = "line"\nmeasure = ["w"]'))
+    message = manifest_error(
+        tmp_path, BASE.replace('group = "line"', 'group = "line"\nmeasure = ["w"]')
+    )
     assert "unknown key 'measure'" in message and "did you mean 'measures'" in message
     assert "line 6" in message  # BASE starts with a blank line; the misspelt key is line 6
 

@@ -23,5 +23,7 @@ def test_ci_uses_the_installed_wheel_and_its_layouts():
     if not os.environ.get("CI"):
         return  # in a development checkout the repo's own layouts are used
     package = Path(sitebuild.__file__).resolve().parent
-    assert REPO not in package.parents, f"tests imported the repo, not the installed wheel: {package}"
+    assert REPO not in package.parents, (
+        f"tests imported the repo, not the installed wheel: {package}"
+    )
     assert packaged_layouts().resolve() == (package / "layouts").resolve()
