@@ -23,9 +23,10 @@ from dataclasses import dataclass
 from pathlib import Path
 
 import pytest
-from conftest import REPO, write_project
 
 from sitebuild.cli import main
+
+from conftest import REPO, write_project
 
 MANIFEST = """
 [site]
@@ -554,6 +555,11 @@ def test_d18_infinities_are_counted_as_not_numbers(project, capsys):
             marks=pytest.mark.xfail(strict=True, reason="BUGS.md #9"),
         ),
         pytest.param(["5e-324", "0", "5e-324", "1e-320", "0", "5e-324"], id="subnormal"),
+        pytest.param(
+            ["0", "7.3e-96", "0", "0", "1", "0"],
+            id="tiny-spread",
+            marks=pytest.mark.xfail(strict=True, reason="BUGS.md #10"),
+        ),
         pytest.param(
             ["1.7976931348623157e308", "1.7976931348623157e308", "1e308", "1", "2", "3"],
             id="max-double",

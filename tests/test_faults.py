@@ -17,11 +17,12 @@ import time
 from pathlib import Path
 
 import pytest
-from conftest import REPO, write_project
 
 import sitebuild
 from sitebuild.cli import main
 from sitebuild.site import publish
+
+from conftest import REPO, write_project
 
 MANIFEST = """
 [site]

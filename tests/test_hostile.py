@@ -16,10 +16,11 @@ import json
 import os
 
 import pytest
-from browser import LAUNCH_ARGS, chromium_path, visit_pages
-from conftest import write_project
 
 import sitebuild
+
+from browser import LAUNCH_ARGS, chromium_path, visit_pages
+from conftest import write_project
 
 pytestmark = pytest.mark.browser
 
