@@ -32,7 +32,7 @@ from ..ingest import (
 from ..manifest import DatasetSpec
 
 BATCH_ROWS = 1 << 20  # rows per record batch: bounds the memory of every pass
-CSV_BLOCK_BYTES = 1 << 25  # bytes of CSV text parsed at a time (about 850,000 short rows)
+CSV_BLOCK_BYTES = 1 << 23  # bytes of CSV text parsed at a time (about 200,000 short rows)
 
 
 @dataclass(frozen=True)
@@ -235,6 +235,33 @@ def _short_rows_batch(rows: list[str], source: Source):
     return pa.table(data)
 
 
+def csv_chunks(path: str, block_bytes: int) -> Iterator[bytes]:
+    """Yield the file as pieces of whole records, each starting with the header line.
+
+    A piece ends at a newline outside quotes (an even number of '"' before it), so a quoted
+    field holding a newline is never cut. Reading one piece at a time is what bounds memory:
+    pyarrow's own streaming reader reads ahead of its consumer without limit.
+    """
+    with open(path, "rb") as handle:
+        header = handle.readline()
+        rest = b""
+        while True:
+            data = handle.read(block_bytes)
+            if not data:
+                if rest.strip():
+                    yield header + rest
+                return
+            buffer = rest + data
+            cut = buffer.rfind(b"\n")
+            while cut >= 0 and buffer.count(b'"', 0, cut) % 2:
+                cut = buffer.rfind(b"\n", 0, cut)
+            if cut < 0:
+                rest = buffer  # one record longer than a block: read on
+                continue
+            yield header + buffer[: cut + 1]
+            rest = buffer[cut + 1 :]
+
+
 def _csv_tables(source: Source, batch_rows: int, block_bytes: int = CSV_BLOCK_BYTES) -> Iterator:
     import pyarrow as pa
     import pyarrow.csv as pacsv
@@ -251,22 +278,25 @@ def _csv_tables(source: Source, batch_rows: int, block_bytes: int = CSV_BLOCK_BY
         return "error"
 
     encoding = "utf8" if source.encoding.startswith("utf-8") else source.encoding
-    reader = pacsv.open_csv(
-        source.parts[0],
-        read_options=pacsv.ReadOptions(encoding=encoding, block_size=block_bytes),
-        parse_options=pacsv.ParseOptions(delimiter=source.delimiter, invalid_row_handler=invalid),
-        convert_options=pacsv.ConvertOptions(
+    options = {
+        "read_options": pacsv.ReadOptions(encoding=encoding, use_threads=False),
+        "parse_options": pacsv.ParseOptions(
+            delimiter=source.delimiter, invalid_row_handler=invalid
+        ),
+        "convert_options": pacsv.ConvertOptions(
             include_columns=list(names),
             column_types={n: pa.string() for n in names},
             null_values=list(MISSING_TOKENS),
             strings_can_be_null=True,
             quoted_strings_can_be_null=True,
         ),
-    )
+    }
     try:
-        for batch in reader:
-            for start in range(0, batch.num_rows, batch_rows):
-                yield batch.slice(start, batch_rows)
+        for chunk in csv_chunks(source.parts[0], block_bytes):
+            table = pacsv.read_csv(pa.BufferReader(chunk), **options)
+            del chunk
+            for start in range(0, table.num_rows, batch_rows):
+                yield table.slice(start, batch_rows)
     except pa.ArrowInvalid as exc:
         if long_rows:
             shown = long_rows[0][:60]
@@ -323,7 +353,9 @@ def _spill_batches(source: Source) -> Iterator[Batch]:
     first = 0
     if not Path(source.parts[0]).exists():
         return  # a file with a header and no rows wrote no spill
-    with pa.memory_map(source.parts[0]) as handle:
+    # Plain reads, one record batch at a time: a memory map of the whole spill would count
+    # its full size against the address space.
+    with pa.OSFile(source.parts[0], "rb") as handle:
         reader = pa.ipc.open_file(handle)
         for i in range(reader.num_record_batches):
             record = reader.get_batch(i)
