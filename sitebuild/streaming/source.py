@@ -319,9 +319,14 @@ def _parquet_tables(path: str, source: Source, batch_rows: int) -> Iterator:
 
 
 def batches(
-    source: Source, part: int, batch_rows: int = BATCH_ROWS, block_bytes: int = CSV_BLOCK_BYTES
+    source: Source, part: int, batch_rows: int | None = None, block_bytes: int | None = None
 ) -> Iterator[Batch]:
-    """Yield the rows of one part of ``source`` as :class:`Batch` objects, in file order."""
+    """Yield the rows of one part of ``source`` as :class:`Batch` objects, in file order.
+
+    Defaults: :data:`BATCH_ROWS` rows per batch, :data:`CSV_BLOCK_BYTES` of CSV per piece.
+    """
+    batch_rows = batch_rows or BATCH_ROWS
+    block_bytes = block_bytes or CSV_BLOCK_BYTES
     if source.kind == "spill":
         yield from _spill_batches(source)
         return
