@@ -239,11 +239,13 @@ def _pair_record(
     rng: np.random.Generator,
     perm: tuple[int, np.random.Generator] | None,
     summary_mode: bool,
+    dominance: tuple[np.ndarray, np.ndarray] | None = None,
+    rest=None,
 ) -> dict:
     conf = settings.confidence
     reasons: dict[str, str] = {}
     wt = welch_t(sa, sb, conf)
-    dom = dominance_counts(sa, sb)
+    dom = dominance if dominance is not None else dominance_counts(sa, sb)
     mw = mann_whitney_u(sa, sb, tie_term=tie, dominance=dom)
     g = hedges_g(sa, sb, conf)
     if summary_mode:
@@ -312,7 +314,8 @@ def _pair_record(
     else:
         count, gen = perm
         if count * (sa.n + sb.n) <= PERMUTATION_BUDGET:
-            rec["permutation_p"] = _num(permutation_test(sa, sb, count, gen).pvalue)
+            other = rest() if rest is not None else sb  # the pooled rest, built only when used
+            rec["permutation_p"] = _num(permutation_test(sa, other, count, gen).pvalue)
         else:
             reasons["permutation_p"] = (
                 f"groups too large for {count} permutations within the time budget; "
@@ -478,23 +481,43 @@ def _measure_entry(
 
     records: list[dict] = []
     if summary_mode:
+        # One sort of every value serves all groups: each group's "rest" is everything else,
+        # so its dominance counts are global counts minus the group's own, its moments come
+        # from the totals, and the pooled ties are the same for every group. Cost O(N log N)
+        # instead of one sort of N values per group.
+        everything = np.sort(np.concatenate([smp.sorted for smp in samples]))
+        _, tie_counts = np.unique(everything, return_counts=True)
+        tie_counts = tie_counts[tie_counts > 1].astype(float)
+        tie_all = float(np.sum(tie_counts**3 - tie_counts))
+        ns = np.array([smp.n for smp in samples], dtype=float)
+        means = np.array([smp.mean for smp in samples], dtype=float)
+        ss = np.array([smp.variance * (smp.n - 1) if smp.n > 1 else 0.0 for smp in samples])
         for i in range(k):
-            rest = np.concatenate([samples[j].sorted for j in range(k) if j != i])
-            rest_s = Sample.of(rest)
-            tie = _pair_tie_vs_rest(samples[i], rest_s)
+            rest_s = _rest_sample(i, ns, means, ss)
+            own = samples[i].sorted
+            dom = (
+                np.searchsorted(everything, own, side="left")
+                - np.searchsorted(own, own, side="left"),
+                np.searchsorted(everything, own, side="right")
+                - np.searchsorted(own, own, side="right"),
+            )
             records.append(
                 _pair_record(
                     names[i],
                     "all other rows",
                     samples[i],
                     rest_s,
-                    tie,
+                    tie_all,
                     settings,
                     margin,
                     rank_lead,
                     rng,
                     perm,
                     True,
+                    dominance=dom,
+                    rest=lambda i=i: Sample.of(
+                        np.concatenate([samples[j].sorted for j in range(k) if j != i])
+                    ),
                 )
             )
     else:
@@ -617,11 +640,22 @@ def _measure_entry(
     return entry
 
 
-def _pair_tie_vs_rest(x: Sample, rest: Sample) -> float:
-    pooled = np.concatenate([x.sorted, rest.sorted])
-    _, counts = np.unique(pooled, return_counts=True)
-    counts = counts[counts > 1].astype(float)
-    return float(np.sum(counts**3 - counts))
+def _rest_sample(i: int, ns: np.ndarray, means: np.ndarray, ss: np.ndarray) -> Sample:
+    """Return the moments of every group but ``i`` pooled, without listing those values.
+
+    Notes: mean_r = Σ_{j≠i} n_j mean_j / n_r and, by the pooled-moments identity of Chan,
+    Golub & LeVeque (1979), SS_r = Σ_{j≠i} [SS_j + n_j (mean_j − mean_r)²] (centred, so no
+    cancellation). The sorted values are left empty: the each-vs-rest path never needs them
+    (dominance counts come from the global sort; the permutation test builds the rest itself).
+    """
+    keep = np.ones(ns.size, dtype=bool)
+    keep[i] = False
+    n_rest = int(ns[keep].sum())
+    if n_rest <= 0:
+        return Sample(np.zeros(0), 0, math.nan, math.nan)
+    mean_rest = float(np.dot(ns[keep], means[keep]) / n_rest)
+    spread = float(ss[keep].sum() + np.dot(ns[keep], (means[keep] - mean_rest) ** 2))
+    return Sample(np.zeros(0), n_rest, mean_rest, spread / (n_rest - 1) if n_rest > 1 else math.nan)
 
 
 def _conclusion(r: dict, margin: float | None, alpha: float) -> tuple[str, str]:
