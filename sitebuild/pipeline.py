@@ -170,6 +170,30 @@ def analyse(table, manifest: Manifest, timer: Timer, say=None) -> dict:
     return ds
 
 
+def summarised_notices(datasets: list[dict]) -> list[str]:
+    """Return one line per dataset whose many groups made the pages summarise, saying how."""
+    from .sections.summaries import MAX_CHART_GROUPS
+
+    lines = []
+    for ds in datasets:
+        count = len(ds.get("groups", []))
+        if count <= MAX_CHART_GROUPS:
+            continue
+        parts = [
+            f"charts show the {MAX_CHART_GROUPS} largest",
+            "long tables show their first rows (CSV has all)",
+        ]
+        if (ds.get("relationship_columns") or {}).get("summarised"):
+            parts.append("within-group relationships cover the largest groups only")
+        modes = {c.get("mode") for c in ds.get("comparisons", [])}
+        if "each group vs the rest" in modes:
+            parts.append("each group is compared with all other rows instead of pair by pair")
+        lines.append(
+            f"{ds['name']}: {count:,} groups, so the page is summarised: " + "; ".join(parts) + "."
+        )
+    return lines
+
+
 def site_block(manifest: Manifest) -> dict:
     """Return the ``site`` block of results.json."""
     s = manifest.site
@@ -383,6 +407,7 @@ def build(
             datasets.append(ds)
             reports.append(_dataset_report(table))
         computed = {"tool_version": __version__, "site": site_block(manifest), "datasets": datasets}
+        notices += summarised_notices(datasets)
         previous, notice = previous_results(target)
         if notice:
             notices.append(notice)
