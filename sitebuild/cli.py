@@ -5,7 +5,9 @@ from __future__ import annotations
 import argparse
 import json
 import os
+import signal
 import sys
+import threading
 
 from . import __version__
 from .errors import SitebuildError
@@ -176,8 +178,24 @@ def _build(args) -> int:
     return 0
 
 
+def _stop_on_terminate(signum, frame):
+    # A service manager or `kill` sends SIGTERM: unwind like Ctrl-C so the staging folder and
+    # the lock are removed and the previous site stays as it was.
+    raise KeyboardInterrupt
+
+
 def main(argv: list[str] | None = None) -> int:
     """Run the command line; return the exit code."""
+    if threading.current_thread() is not threading.main_thread():
+        return _main(argv)
+    previous = signal.signal(signal.SIGTERM, _stop_on_terminate)
+    try:
+        return _main(argv)
+    finally:
+        signal.signal(signal.SIGTERM, previous)
+
+
+def _main(argv: list[str] | None) -> int:
     args = parser().parse_args(argv)
     debug = getattr(args, "debug", False) or os.environ.get("SITEBUILD_DEBUG") == "1"
     try:

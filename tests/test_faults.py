@@ -239,7 +239,7 @@ def wait_for(proc: subprocess.Popen, marker: str, timeout: float = 60) -> list[s
     "signum",
     [
         signal.SIGINT,
-        pytest.param(signal.SIGTERM, marks=pytest.mark.xfail(strict=True, reason="BUGS.md #7")),
+        signal.SIGTERM,
     ],
     ids=["SIGINT", "SIGTERM"],
 )
@@ -262,7 +262,7 @@ def test_signal_half_way_through_writing(site, signum):
     "signum",
     [
         signal.SIGINT,
-        pytest.param(signal.SIGTERM, marks=pytest.mark.xfail(strict=True, reason="BUGS.md #7")),
+        signal.SIGTERM,
     ],
     ids=["SIGINT", "SIGTERM"],
 )
