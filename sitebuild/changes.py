@@ -77,8 +77,9 @@ def _moved(old: dict, new: dict, level_old: float, level_new: float) -> list[dic
         se_before, se_after = se_of(old, level_old), se_of(new, level_new)
         if None in (before, after, se_before, se_after):
             continue
-        threshold = math.sqrt(se_before**2 + se_after**2)
-        if abs(after - before) > threshold:
+        # hypot: no overflow for standard errors near the largest double.
+        threshold = math.hypot(se_before, se_after)
+        if abs(after / 2 - before / 2) > threshold / 2:
             moved.append(
                 {
                     "measure": new["measure"],

@@ -362,9 +362,45 @@ def read_frame(spec: DatasetSpec):
         ) from None
     frame.columns = [header[p] for p in sorted(positions)]
     del numeric
+    extra = first_overlong_line(path, delimiter, len(header))
+    if extra is not None:
+        raise SitebuildError(
+            f"{spec.file}: a row has more fields than the header at line {extra}; fix that row "
+            f"or quote fields that contain the delimiter (the header has {len(header)} fields)."
+        )
     return frame[needed], encoding, delimiter, warnings
 
 
+def first_overlong_line(path: Path, delimiter: str, fields: int) -> int | None:
+    """Return the 1-based number of the first line with more fields than the header, or None.
+
+    pandas' reader, when asked for some columns only, drops extra fields without a word, so
+    they are counted here. Without quote characters a field count is delimiters + 1 (counted
+    with numpy over the bytes; the delimiters are ASCII, so UTF-8 and Latin-1 text cannot hide
+    them); with quotes, the csv module parses the lines.
+    """
+    import numpy as np
+
+    data = path.read_bytes()
+    mark = delimiter.encode("ascii")
+    if b'"' not in data:
+        raw = np.frombuffer(data, dtype=np.uint8)
+        ends = np.flatnonzero(raw == 10)
+        if ends.size == 0 or ends[-1] != raw.size - 1:
+            ends = np.append(ends, raw.size)
+        hits = np.flatnonzero(raw == mark[0])
+        per_line = np.diff(np.concatenate([[0], np.searchsorted(hits, ends, side="right")]))
+        over = np.flatnonzero(per_line + 1 > fields)
+        return int(over[0]) + 1 if over.size else None
+    text = data.decode("latin-1")  # byte-transparent: only ASCII delimiters and quotes matter
+    reader = csv.reader(io.StringIO(text, newline=""), delimiter=delimiter)
+    for row in reader:
+        if len(row) > fields:
+            return reader.line_num
+    return None
+
+
+MAX_LABEL = 200  # characters; every chart, table and CSV repeats a group's label
 STREAM_BYTES = 1 << 30  # a CSV/TSV or Parquet file larger than this is streamed by default
 
 
@@ -407,6 +443,13 @@ def read_table(
     frame, encoding, delimiter, warnings = read_frame(spec)
     rows_read = int(len(frame))
     all_codes, groups = group_codes(frame[spec.group])
+    longest = max(groups, key=len, default="")
+    if len(longest) > MAX_LABEL:
+        raise SitebuildError(
+            f"{spec.file}: a group label in column '{spec.group}' is {len(longest):,} characters "
+            f"long (it starts '{longest[:20]}'); group labels can be at most {MAX_LABEL} "
+            "characters — shorten them, or group by a shorter code column."
+        )
     has_group = all_codes >= 0
     every_row = bool(has_group.all())
 
@@ -426,6 +469,9 @@ def read_table(
     reasons = {"missing group label": dropped} if dropped else {}
     if rows_read == 0:
         warnings = [*warnings, f"{spec.file} has a header but no data rows."]
+    for name, count in missing.items():
+        if len(codes) and count == len(codes):
+            warnings = [*warnings, f"column '{name}' has no values (all {count:,} are missing)."]
     report = IngestReport(
         file=spec.file,
         sha256=sha256 or file_sha256(spec.path),

@@ -15,7 +15,6 @@ import tempfile
 from pathlib import Path
 
 import jsonschema
-import pytest
 from hypothesis import HealthCheck, example, given, settings
 from hypothesis import strategies as st
 
@@ -152,7 +151,6 @@ def test_random_small_tables_analyse_to_valid_results(rows):
     check_dataset(analysed(rows), rows)
 
 
-@pytest.mark.xfail(strict=True, reason="BUGS.md #8, #9, #10")
 @settings(max_examples=30, deadline=None, suppress_health_check=[HealthCheck.too_slow])
 @given(tables(values=st.one_of(ORDINARY, EXTREME)))
 @example([("A", "1e308", "1"), ("A", "-1e308", "2"), ("B", "1e308", "3"), ("B", "-1e308", "4")])

@@ -77,8 +77,10 @@ def _round_records(records: list) -> list:
                 spans[key] = (min(low, value), max(high, value))
     decimals = {}
     for key, (low, high) in spans.items():
-        scale = max(high - low, abs(high), abs(low)) if high == low else high - low
-        decimals[key] = 5 - math.floor(math.log10(scale)) if scale > 0 else None
+        # Halves: high - low itself can exceed the largest double.
+        scale = 2 * (high / 2 - low / 2) if high != low else max(abs(high), abs(low))
+        usable = scale > 0 and math.isfinite(scale)
+        decimals[key] = 5 - math.floor(math.log10(scale)) if usable else None
     out = []
     for record in records:
         rounded = dict(record)

@@ -79,7 +79,12 @@ def _quantile_sorted(values: np.ndarray, q: float) -> float:
     low = math.floor(position)
     high = min(low + 1, len(values) - 1)
     weight = position - low
-    return float(values[low] + (values[high] - values[low]) * weight)
+    below, above = float(values[low]), float(values[high])
+    step = above - below
+    if math.isfinite(step):
+        return below + step * weight
+    # The gap itself exceeds the largest double (e.g. -1e308 to 1e308): weight the ends instead.
+    return below * (1.0 - weight) + above * weight
 
 
 def describe_sorted(values: np.ndarray, level: float = 0.95, missing: int = 0) -> Summary:
@@ -117,19 +122,30 @@ def describe_sorted(values: np.ndarray, level: float = 0.95, missing: int = 0) -
     if n == 0:
         reasons["all"] = "no values"
         return Summary(**out)
-    mean = float(values.mean())
-    deviations = values - mean
+    # Moments are taken on values divided by a power of two near the largest magnitude: the
+    # division is exact, so ordinary data give the very same numbers, while values near the
+    # float limits (1e308, 5e-324) can no longer overflow or underflow in sums and powers.
+    largest = max(abs(float(values[0])), abs(float(values[-1])))
+    unit = math.ldexp(1.0, math.frexp(largest)[1] - 1) if largest > 0 else 1.0
+    scaled = values / unit
+    mean_s = float(scaled.mean())
+    deviations = scaled - mean_s
     # A second correction pass removes the rounding left in the first mean (Chan et al. 1983).
     correction = float(deviations.mean())
-    mean += correction
+    mean_s += correction
     deviations -= correction
+    mean = mean_s * unit
     out.update(mean=mean, min=float(values[0]), max=float(values[-1]))
     out["median"] = _quantile_sorted(values, 0.5)
     out["q1"] = _quantile_sorted(values, 0.25)
     out["q3"] = _quantile_sorted(values, 0.75)
     out["iqr"] = out["q3"] - out["q1"]
-    fence_low = out["q1"] - 1.5 * out["iqr"]
-    fence_high = out["q3"] + 1.5 * out["iqr"]
+    if not math.isfinite(out["iqr"]):
+        out["iqr"] = None
+        reasons["iqr"] = "the quartiles are further apart than the largest double-precision number"
+    spread = out["iqr"] if out["iqr"] is not None else math.inf
+    fence_low = out["q1"] - 1.5 * spread
+    fence_high = out["q3"] + 1.5 * spread
     lo = int(np.searchsorted(values, fence_low, side="left"))
     hi = int(np.searchsorted(values, fence_high, side="right"))
     out["outliers"] = lo + (n - hi)
@@ -149,22 +165,30 @@ def describe_sorted(values: np.ndarray, level: float = 0.95, missing: int = 0) -
         return Summary(**out)
     squares = deviations * deviations
     m2 = float(squares.sum())
-    variance = m2 / (n - 1)
-    sd = math.sqrt(variance)
+    sd_s = math.sqrt(m2 / (n - 1))
+    sd = sd_s * unit
+    if not math.isfinite(sd):
+        for key in ("sd", "se", "ci", "share_within", "skewness", "excess_kurtosis"):
+            reasons[key] = "the spread exceeds the largest double-precision number"
+        reasons["normality"] = reasons["sd"]
+        return Summary(**out)
     out["sd"] = sd
     out["se"] = sd / math.sqrt(n)
     half = float(stats.t.ppf((1 + level) / 2, n - 1)) * out["se"]
     out["ci_low"], out["ci_high"] = mean - half, mean + half
-    scale = max(abs(mean), float(np.abs(values).max()))
-    if sd == 0 or sd <= scale * 1e-14:
+    if not (math.isfinite(out["ci_low"]) and math.isfinite(out["ci_high"])):
+        out["ci_low"] = out["ci_high"] = None
+        reasons["ci"] = "the interval exceeds the largest double-precision number"
+    # The scaled values lie within [-1, 1], so the largest magnitude is 1 here.
+    if sd_s == 0 or sd_s <= max(abs(mean_s), 1.0) * 1e-14:
         out.update(sd=0.0, se=0.0, ci_low=mean, ci_high=mean)
         out["share_within_1sd"] = out["share_within_2sd"] = 1.0
         for key in ("skewness", "excess_kurtosis", "normality"):
             reasons[key] = "all values are equal"
         return Summary(**out)
     within = np.abs(deviations)
-    out["share_within_1sd"] = float(np.count_nonzero(within <= sd)) / n
-    out["share_within_2sd"] = float(np.count_nonzero(within <= 2 * sd)) / n
+    out["share_within_1sd"] = float(np.count_nonzero(within <= sd_s)) / n
+    out["share_within_2sd"] = float(np.count_nonzero(within <= 2 * sd_s)) / n
     biased_var = m2 / n
     m3 = float((squares * deviations).mean())
     m4 = float((squares * squares).mean())
@@ -182,7 +206,8 @@ def describe_sorted(values: np.ndarray, level: float = 0.95, missing: int = 0) -
         reasons["normality"] = "needs at least 3 values"
     elif n <= SHAPIRO_LIMIT:
         out["normality_test"] = "shapiro-wilk"
-        out["normality_p"] = float(stats.shapiro(values).pvalue)
+        # Shapiro–Wilk is scale-free; the scaled values keep its sums inside double range.
+        out["normality_p"] = float(stats.shapiro(scaled).pvalue)
     elif n >= 8:
         out["normality_test"] = "dagostino-pearson"
         out["normality_p"] = dagostino_pearson(n, g1, m4 / biased_var**2).pvalue
@@ -298,9 +323,13 @@ def histogram_edges_from(
         return np.array([0.0, 1.0])
     if low == high:
         return np.array([low - 0.5, high + 0.5])
-    width = 2 * (q3 - q1) * n ** (-1 / 3)
-    bins = int(math.ceil((high - low) / width)) if width > 0 else 0
+    # Halves first: (high - low) itself can exceed the largest double (1e308 - -1e308).
+    width_half = (q3 / 2 - q1 / 2) * 2 * n ** (-1 / 3)
+    span_half = high / 2 - low / 2
+    bins = int(math.ceil(span_half / width_half)) if width_half > 0 else 0
     if bins <= 0:
         bins = int(math.ceil(math.log2(n) + 1))
     bins = max(5, min(max_bins, bins))
-    return np.linspace(low, high, bins + 1)
+    edges = np.linspace(low / 2, high / 2, bins + 1) * 2
+    edges[0], edges[-1] = low, high  # exact ends, so the extremes fall inside the bins
+    return edges
