@@ -130,3 +130,32 @@ def test_empty_file(tmp_path):
 def test_sniffer_prefers_consistent_split():
     assert sniff_delimiter("a;b;c\n1,5;2;3\n4;5,5;6\n", ".csv") == ";"
     assert sniff_delimiter("a,b\n1,2\n", ".csv") == ","
+
+
+@pytest.mark.parametrize(
+    "text",
+    [
+        'g,v,w\n"a,b",1,2\n"x\ny",2,3\nA,1,2,3\nB,1,2\n',
+        'g,v,w\n"say ""hi"", ok",1,2\nA,1,2\n',
+        "g,v,w\r\nA,1,2\r\nA,1,2,9,9\r\n",
+        "g,v,w\nA,1,2\nB,3,4",
+    ],
+)
+def test_overlong_line_matches_the_csv_module(tmp_path, text):
+    import csv
+    import io
+
+    from sitebuild.ingest import first_overlong_line
+
+    path = tmp_path / "d.csv"
+    path.write_bytes(text.encode("utf-8"))
+    # Reference: Python's csv module, which parses quotes per RFC 4180.
+    reader = csv.reader(io.StringIO(text, newline=""))
+    expected = None
+    start = 1
+    for row in reader:
+        if len(row) > 3:
+            expected = start
+            break
+        start = reader.line_num + 1
+    assert first_overlong_line(path, ",", 3) == expected
