@@ -84,6 +84,15 @@ CASES = {
         driver="stream",
     ),
     "stream1m": Case("stream1m", 1_000_000, 8, 4, "csv", engine="stream"),
+    "stream10m": Case(
+        "stream10m",
+        10_000_000,
+        8,
+        4,
+        "parquet",
+        engine="stream",
+        targets={"seconds": 60.0, "rss_mb": 4096},
+    ),
     "folder": Case("folder", 2_000_000, 8, 4, "parquet-folder", engine="stream"),
 }
 
