@@ -504,7 +504,11 @@ def _type7(values: dict, n: int, q: float) -> float:
     low = math.floor(position)
     high = min(low + 1, n - 1)
     weight = position - low
-    return float(values[low] + (values[high] - values[low]) * weight)
+    below, above = float(values[low]), float(values[high])
+    step = above - below
+    if math.isfinite(step):
+        return below + step * weight
+    return below * (1.0 - weight) + above * weight  # as stats.summary._quantile_sorted
 
 
 def _numpy_linear(values: dict, n: int, q: float) -> float:
@@ -831,6 +835,9 @@ def _large_summary(every: Moments, label, level, at: dict, within, acc, missing,
     out["q1"] = _type7(at, n, 0.25)
     out["q3"] = _type7(at, n, 0.75)
     out["iqr"] = out["q3"] - out["q1"]
+    if not math.isfinite(out["iqr"]):
+        out["iqr"] = None
+        reasons["iqr"] = "the quartiles are further apart than the largest double-precision number"
     below, above = int(acc["below"][label]), int(acc["above"][label])
     out["outliers"] = below + above
     out["whisker_low"] = float(acc["whisker_low"][label]) if below < n else None
@@ -842,12 +849,23 @@ def _large_summary(every: Moments, label, level, at: dict, within, acc, missing,
     out["median_ci_high"] = at[ranks[1] - 1]
     out["median_ci_level"] = ranks[2]
     sd = math.sqrt(m2 / (n - 1))
+    if not math.isfinite(sd):
+        for key in ("sd", "se", "ci", "share_within", "skewness", "excess_kurtosis"):
+            reasons[key] = "the spread exceeds the largest double-precision number"
+        reasons["normality"] = reasons["sd"]
+        return Summary(**out)
     out["sd"] = sd
     out["se"] = sd / math.sqrt(n)
     half = float(stats.t.ppf((1 + level) / 2, n - 1)) * out["se"]
     out["ci_low"], out["ci_high"] = mean - half, mean + half
-    scale = max(abs(mean), abs(low), abs(high))
-    if sd == 0 or sd <= scale * 1e-14:
+    if not (math.isfinite(out["ci_low"]) and math.isfinite(out["ci_high"])):
+        out["ci_low"] = out["ci_high"] = None
+        reasons["ci"] = "the interval exceeds the largest double-precision number"
+    # The same "all equal" rule as describe_sorted: sd against the power of two just below
+    # the largest magnitude (the unit it scales values by).
+    largest = max(abs(low), abs(high))
+    unit = math.ldexp(1.0, math.frexp(largest)[1] - 1) if largest > 0 else 1.0
+    if sd == 0 or sd / unit <= max(abs(mean / unit), 1.0) * 1e-14:
         out.update(sd=0.0, se=0.0, ci_low=mean, ci_high=mean)
         out["share_within_1sd"] = out["share_within_2sd"] = 1.0
         for key in ("skewness", "excess_kurtosis", "normality"):
@@ -946,9 +964,23 @@ def read_streamed(spec, rng: np.random.Generator | None = None, runner: Runner |
         if count
     }
     unparsed = {n: unparsed[n] for n in source.numeric if n in unparsed}
+    from ..ingest import MAX_LABEL
+
+    longest = max(groups, key=len, default="")
+    if len(longest) > MAX_LABEL:
+        from ..errors import SitebuildError
+
+        raise SitebuildError(
+            f"{spec.file}: a group label in column '{spec.group}' is {len(longest):,} characters "
+            f"long (it starts '{longest[:20]}'); group labels can be at most {MAX_LABEL} "
+            "characters — shorten them, or group by a shorter code column."
+        )
     warnings = list(source.warnings)
     if state.rows_read == 0:
         warnings.append(f"{spec.file} has a header but no data rows.")
+    for name in source.numeric:
+        if rows_used and state.missing[name] == rows_used:
+            warnings.append(f"column '{name}' has no values (all {rows_used:,} are missing).")
     report = IngestReport(
         file=spec.file,
         sha256=sha256 or source_sha256(spec.path),
