@@ -222,7 +222,8 @@ def _project_path(check: _Checker, root: Path, where: str, key: str, raw: str, b
             "copy the file into the project folder",
             block,
         )
-    if not resolved.is_file():
+    # A folder is a dataset of Parquet parts (read by the stream or dask engine).
+    if not (resolved.is_file() or (key == "file" and resolved.is_dir())):
         check.fail(
             where,
             key,

@@ -245,7 +245,12 @@ def _report_from_results(ds: dict, reused: bool) -> DatasetReport:
 
 
 def file_digest(path: Path) -> str:
-    """Return the hex SHA-256 of a file's bytes (the same digest results.json records)."""
+    """Return the hex SHA-256 of a file's bytes (the same digest results.json records); for a
+    folder of Parquet parts, the digest of its (name, hash) list."""
+    if path.is_dir():
+        from .streaming.source import source_sha256
+
+        return source_sha256(path)
     digest = hashlib.sha256()
     with open(path, "rb") as handle:
         for chunk in iter(lambda: handle.read(1 << 20), b""):
@@ -397,7 +402,9 @@ def build(
             if say:
                 say(f"{spec.name}: reading {spec.file}")
             with timer.stage("read"):
-                table = read_table(spec)
+                table = read_table(
+                    spec, rng=dataset_rng(manifest.site.seed, spec.name, 99), sha256=sha
+                )
             if say:
                 say(f"{spec.name}: {table.report.rows_used:,} rows ready")
             ds = clean(analyse(table, manifest, timer, say))
