@@ -12,6 +12,7 @@ import importlib
 import importlib.util
 import json
 import sys
+import os
 import time
 import zlib
 from contextlib import contextmanager
@@ -146,6 +147,9 @@ def _dataset_report(table, reused: bool = False) -> DatasetReport:
     )
 
 
+PARALLEL_ROWS = 200_000  # below this, threads cost more than they save
+
+
 def analyse(table, manifest: Manifest, timer: Timer, say=None) -> dict:
     """Return one dataset's results dict: source, groups and every section's keys."""
     spec = table.spec
@@ -159,14 +163,36 @@ def analyse(table, manifest: Manifest, timer: Timer, say=None) -> dict:
         "groups": list(table.groups),
         "settings": spec.section(),
     }
-    for index, module in enumerate(section_modules()):
+    modules = section_modules()
+
+    def run(index: int, partial: dict) -> dict:
+        module = modules[index]
         name = module.__name__.rsplit(".", 1)[-1]
         began = time.perf_counter()
         with timer.stage(name):
             rng = dataset_rng(manifest.site.seed, spec.name, index)
-            ds.update(module.compute(table, manifest.site, rng, ds))
+            keys = module.compute(table, manifest.site, rng, partial)
         if say:
             say(f"{spec.name}: {name} ({time.perf_counter() - began:.2f} s)")
+        return keys
+
+    # The summaries come first (later sections may read them); the others depend only on the
+    # table and the summaries, so on large tables they run side by side. Their heavy work is
+    # numpy sorting and searching, which releases the GIL; each has its own seeded generator,
+    # so the results are the same in any order.
+    ds.update(run(0, ds))
+    rest = range(1, len(modules))
+    if table.n_rows >= PARALLEL_ROWS and len(rest) > 1 and (os.cpu_count() or 1) > 1:
+        from concurrent.futures import ThreadPoolExecutor
+
+        snapshot = dict(ds)
+        with ThreadPoolExecutor(max_workers=2) as pool:
+            futures = [pool.submit(run, index, snapshot) for index in rest]
+            for future in futures:
+                ds.update(future.result())
+    else:
+        for index in rest:
+            ds.update(run(index, ds))
     return ds
 
 

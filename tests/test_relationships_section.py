@@ -185,7 +185,7 @@ def test_scatter_is_bounded_seeded_and_keeps_every_group():
     t = _table({"x": x, "y": x + rng.normal(0, 0.1, n)}, codes, ["large", "small"], ["y"], x="x")
     first = rel.compute(t, SiteSettings(), np.random.default_rng(9), {})["scatter"][0]
     again = rel.compute(t, SiteSettings(), np.random.default_rng(9), {})["scatter"][0]
-    assert first["sampled"] and first["n_total"] == n and first["n_shown"] <= 5000
+    assert first["sampled"] and first["n_total"] == n and first["n_shown"] <= rel.SCATTER_LIMIT
     assert len(first["points"]) == first["n_shown"]
     assert first["points"] == again["points"]
     assert sum(p["group"] == "small" for p in first["points"]) == 60
@@ -222,7 +222,9 @@ def test_charts_compile_use_safe_fields_and_keep_user_text_as_data():
         fields = _fields(chart.spec)
         assert fields <= SAFE_FIELDS, fields
         for layer in chart.spec.get("layer", []):
-            assert len(layer.get("data", {}).get("values", [])) <= 5000
+            assert len(layer.get("data", {}).get("values", [])) <= rel.SCATTER_LIMIT
+        for records in chart.spec.get("datasets", {}).values():
+            assert len(records) <= rel.SCATTER_LIMIT * 2  # points, or curves of 100 grid points
 
 
 def _render(out, settings, charts, tables):
@@ -259,7 +261,7 @@ def test_layout_renders_every_chart_and_table_and_escapes_user_text():
         assert f'data-id="{item.id}"' in html
     assert "<i>east</i>" not in html and "&lt;i&gt;east&lt;/i&gt;" in html
     assert 'onmouseover="x"' not in html
-    assert "random sample of 5,000 of the\n      7,000 points" in html  # sampling is said
+    assert f"random sample of {rel.SCATTER_LIMIT:,} of the\n      7,000 points" in html  # said
     assert "pointwise" in html and "Holm" in html and "straight line" in html
 
 

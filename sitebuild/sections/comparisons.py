@@ -63,6 +63,7 @@ PERMUTATION_BUDGET = 50_000_000
 # group it runs on a seeded random sample of this size. The interval stays valid (it is the
 # distribution-free interval of that sample), only wider than one from every value.
 HL_SAMPLE_LIMIT = 5_000
+PARALLEL_ROWS = 200_000  # measures run on two threads from this many rows
 SKEW_LIMIT = 1.0
 SD_RATIO_LIMIT = 2.0
 SIZE_RATIO_LIMIT = 1.5
@@ -703,7 +704,21 @@ def compute(table, settings, rng: np.random.Generator, partial: dict | None = No
     del partial
     spec = table.spec
     perm_seed = int(rng.integers(0, 2**31 - 1)) if spec.permutations > 0 else None
-    entries = [_measure_entry(table, m, settings, rng, perm_seed) for m in spec.measures]
+    # One child generator per measure: results do not depend on the order measures are run,
+    # so large tables can run them on two threads (the work is numpy, which releases the GIL).
+    children = rng.spawn(len(spec.measures))
+    jobs = list(zip(spec.measures, children, strict=True))
+    if table.n_rows >= PARALLEL_ROWS and len(jobs) > 1:
+        from concurrent.futures import ThreadPoolExecutor
+
+        with ThreadPoolExecutor(max_workers=2) as pool:
+            entries = list(
+                pool.map(
+                    lambda job: _measure_entry(table, job[0], settings, job[1], perm_seed), jobs
+                )
+            )
+    else:
+        entries = [_measure_entry(table, m, settings, child, perm_seed) for m, child in jobs]
     return {"comparisons": entries}
 
 
