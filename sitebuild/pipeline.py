@@ -11,8 +11,8 @@ import hashlib
 import importlib
 import importlib.util
 import json
-import sys
 import os
+import sys
 import time
 import zlib
 from contextlib import contextmanager
