@@ -69,8 +69,9 @@ SD_RATIO_LIMIT = 2.0
 SIZE_RATIO_LIMIT = 1.5
 SMALL_GROUP = 30
 FEW_ROWS = 10
-# Values beyond this magnitude (or below its inverse) cannot be squared safely in float64.
-SCALE_LIMIT = 1e150
+# Values beyond this magnitude (or below its inverse) cannot be raised to the fourth power
+# (Welch degrees of freedom square the variances) safely in float64.
+SCALE_LIMIT = 1e75
 
 TEST_ANOVA = "one-way ANOVA"
 TEST_WELCH = "Welch's ANOVA"

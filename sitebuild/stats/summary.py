@@ -326,7 +326,8 @@ def histogram_edges_from(
     # Halves first: (high - low) itself can exceed the largest double (1e308 - -1e308).
     width_half = (q3 / 2 - q1 / 2) * 2 * n ** (-1 / 3)
     span_half = high / 2 - low / 2
-    bins = int(math.ceil(span_half / width_half)) if width_half > 0 else 0
+    ratio = span_half / width_half if width_half > 0 else 0.0
+    bins = int(math.ceil(ratio)) if math.isfinite(ratio) else max_bins
     if bins <= 0:
         bins = int(math.ceil(math.log2(n) + 1))
     bins = max(5, min(max_bins, bins))
