@@ -280,3 +280,24 @@ def test_no_x_means_correlations_only():
     assert all(r["group"] is None for r in out["relationships"])
     html = _render(out, settings, rel.charts(out, settings), rel.tables(out, settings))
     assert "rel-heat-all" in html and "rel-scatter" not in html
+
+
+def test_many_groups_draw_curves_and_heatmaps_for_the_largest_only():
+    # More groups than DRAWN_LIMIT: per-group smooths and heatmaps for the largest groups only,
+    # every group keeps its correlation table, and the page note says so.
+    rng = np.random.default_rng(5)
+    groups = [f"L{i}" for i in range(12)]
+    sizes = [40 + 5 * i for i in range(12)]
+    codes = np.repeat(np.arange(12), sizes)
+    x = rng.uniform(0, 1, codes.size)
+    t = _table({"x": x, "y": x**2 + rng.normal(0, 0.1, codes.size)}, codes, groups, ["y"], x="x")
+    out = rel.compute(t, SiteSettings(), np.random.default_rng(1), {})
+    largest = sorted(groups, key=lambda g: -sizes[groups.index(g)])[: rel.DRAWN_LIMIT]
+    smoothed = {s["group"] for s in out["smooths"]} - {None}
+    assert smoothed == set(largest)
+    assert set(out["relationship_columns"]["drawn_groups"]) == set(largest)
+    assert "drawn for the 8 largest groups" in out["relationship_columns"]["summarised"]
+    heatmaps = [c for c in rel.charts(out, SiteSettings()) if c.id.startswith("rel-heat-g")]
+    assert len(heatmaps) == rel.DRAWN_LIMIT
+    group_tables = [tb for tb in rel.tables(out, SiteSettings()) if tb.id.startswith("rel-corr-g")]
+    assert len(group_tables) == 12

@@ -19,7 +19,10 @@ from . import Chart, DataTable
 
 SCATTER_LIMIT = 2_000  # points shipped per scatter chart (keeps a 1M-row site under 3 MB)
 PAIR_SMOOTH_LIMIT = 50_000  # rows used for the measure-against-measure curvature check
-GROUP_LIMIT = 30  # within-group correlations, smooths and charts for at most this many groups
+GROUP_LIMIT = 30  # within-group correlation tables for at most this many groups
+# Per-group smooths and heatmaps for at most this many (the largest) groups: the palette has 8
+# colours, and more curves on one scatter cannot be told apart anyway.
+DRAWN_LIMIT = 8
 METHOD_LABELS = {"pearson": "Pearson r", "spearman": "Spearman rho", "kendall": "Kendall tau-b"}
 
 
@@ -289,12 +292,18 @@ def compute(table, settings, rng: np.random.Generator, partial: dict | None = No
     names = list(dict.fromkeys([*spec.measures, *([x_name] if x_name else [])]))
     chosen = chosen_groups(table)
     groups = [table.groups[g] for g in chosen]
+    sizes = np.bincount(table.codes, minlength=len(table.groups))
+    drawn = sorted(sorted(chosen, key=lambda g: -sizes[g])[:DRAWN_LIMIT])
     summarised = None
     if len(chosen) < len(table.groups):
         summarised = (
-            f"{len(table.groups):,} groups: correlations, smooths and scatter points within "
-            f"groups are shown for the {len(chosen)} largest groups only; the all-rows figures "
-            "use every row."
+            f"{len(table.groups):,} groups: correlations and scatter points within groups are "
+            f"shown for the {len(chosen)} largest groups only; the all-rows figures use every row."
+        )
+    if len(drawn) < len(chosen):
+        summarised = (summarised + " " if summarised else "") + (
+            f"Smooth curves and correlation heatmaps within groups are drawn for the "
+            f"{len(drawn)} largest groups; the tables list every group shown."
         )
     correlations, family = _correlations(table, names, settings, rng, chosen)
     pearson_r = {}
@@ -315,7 +324,7 @@ def compute(table, settings, rng: np.random.Generator, partial: dict | None = No
             y_all = table.values(measure)
             scopes = [(None, x_all, y_all)]
             xs, ys = x_all[order], y_all[order]
-            for g in chosen:
+            for g in drawn:
                 part = slice(bounds[g], bounds[g + 1])
                 scopes.append((table.groups[g], xs[part], ys[part]))
             for label, xv, yv in scopes:
@@ -383,6 +392,7 @@ def compute(table, settings, rng: np.random.Generator, partial: dict | None = No
             "groups": groups,
             "curve_rule": RULE,
             "summarised": summarised,
+            "drawn_groups": [table.groups[g] for g in drawn],
         },
     }
 
@@ -395,7 +405,10 @@ def charts(dataset: dict, settings) -> list[Chart]:
     if not info:
         return []
     out = []
-    scopes = [(None, "all")] + [(g, f"g{k + 1}") for k, g in enumerate(info["groups"])]
+    drawn = set(info.get("drawn_groups", info["groups"]))
+    scopes = [(None, "all")] + [
+        (g, f"g{k + 1}") for k, g in enumerate(info["groups"]) if g in drawn
+    ]
     for group, suffix in scopes:
         cells = [
             c for c in dataset["correlations"] if c["method"] == "pearson" and c["group"] == group
