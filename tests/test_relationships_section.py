@@ -301,3 +301,30 @@ def test_many_groups_draw_curves_and_heatmaps_for_the_largest_only():
     assert len(heatmaps) == rel.DRAWN_LIMIT
     group_tables = [tb for tb in rel.tables(out, SiteSettings()) if tb.id.startswith("rel-corr-g")]
     assert len(group_tables) == 12
+
+
+def test_wide_tables_keep_kendall_for_all_rows_only():
+    # Over WIDE_PAIRS column pairs: within groups only Pearson and Spearman; all rows keep all
+    # three, and the values still match scipy (reference) for one pair.
+    from scipy import stats
+
+    rng = np.random.default_rng(8)
+    n = 300
+    codes = np.repeat(np.arange(3), n // 3)
+    cols = {f"m{i}": rng.normal(size=n) + 0.3 * i * np.linspace(0, 1, n) for i in range(12)}
+    t = _table(cols, codes, ["a", "b", "c"], list(cols))
+    out = rel.compute(t, SiteSettings(), np.random.default_rng(1), {})
+    methods_within = {c["method"] for c in out["correlations"] if c["group"] is not None}
+    methods_all = {c["method"] for c in out["correlations"] if c["group"] is None}
+    assert methods_within == {"pearson", "spearman"}
+    assert methods_all == {"pearson", "spearman", "kendall"}
+    assert "Kendall for all rows" in out["relationship_columns"]["summarised"]
+    row = next(
+        c
+        for c in out["correlations"]
+        if c["group"] == "b" and c["method"] == "spearman" and {c["a"], c["b"]} == {"m0", "m5"}
+    )
+    part = codes == 1
+    assert row["r"] == pytest.approx(
+        stats.spearmanr(cols["m0"][part], cols["m5"][part])[0], rel=1e-12
+    )

@@ -18,6 +18,8 @@ from ..stats.multiplicity import METHOD_NAMES, adjust_pvalues
 from . import Chart, DataTable
 
 SCATTER_LIMIT = 2_000  # points shipped per scatter chart (keeps a 1M-row site under 3 MB)
+SCATTER_BUDGET = 16_000  # points shipped over all scatter charts of a page (wide tables)
+WIDE_PAIRS = 45  # more column pairs than this (over 10 columns) makes a table "wide"
 PAIR_SMOOTH_LIMIT = 50_000  # rows used for the measure-against-measure curvature check
 GROUP_LIMIT = 30  # within-group correlation tables for at most this many groups
 # Per-group smooths and heatmaps for at most this many (the largest) groups: the palette has 8
@@ -76,13 +78,29 @@ def _correlations(table, names, settings, rng, chosen: list[int]) -> tuple[list[
     remap = np.full(len(table.groups), len(chosen), dtype=np.int64)
     remap[chosen] = np.arange(len(chosen))
     codes = remap[table.codes]
-    results = correlation_tables(
-        data,
-        codes,
-        len(chosen) + (len(chosen) < len(table.groups)),
-        level=settings.confidence,
-        rng=rng,
-    )
+    n_codes = len(chosen) + (len(chosen) < len(table.groups))
+    pairs = len(names) * (len(names) - 1) // 2
+    if pairs > WIDE_PAIRS:
+        # Wide tables: Kendall's tau-b (one O(n log n) pass per pair and scope) only for all
+        # rows; within groups Pearson and Spearman, from matrix products.
+        everything = correlation_tables(data, level=settings.confidence, rng=rng)
+        within = correlation_tables(
+            data,
+            codes,
+            n_codes,
+            methods=("pearson", "spearman"),
+            level=settings.confidence,
+            rng=rng,
+        )
+        results = everything + [r for r in within if r.group is not None]
+    else:
+        results = correlation_tables(
+            data,
+            codes,
+            n_codes,
+            level=settings.confidence,
+            rng=rng,
+        )
     out: list[dict] = []
     for result in results:
         if result.group is not None and result.group >= len(chosen):
@@ -305,7 +323,18 @@ def compute(table, settings, rng: np.random.Generator, partial: dict | None = No
             f"Smooth curves and correlation heatmaps within groups are drawn for the "
             f"{len(drawn)} largest groups; the tables list every group shown."
         )
-    correlations, family = _correlations(table, names, settings, rng, chosen)
+    wide = len(names) * (len(names) - 1) // 2 > WIDE_PAIRS
+    if wide and len(drawn) < len(table.groups):
+        summarised = (summarised + " " if summarised else "") + (
+            f"With {len(names)} columns, within-group correlations are computed for the "
+            f"{len(drawn)} largest groups, by Pearson and Spearman only (Kendall for all rows)."
+        )
+    elif wide:
+        summarised = (summarised + " " if summarised else "") + (
+            f"With {len(names)} columns, within-group correlations use Pearson and Spearman only "
+            "(Kendall for all rows)."
+        )
+    correlations, family = _correlations(table, names, settings, rng, drawn if wide else chosen)
     pearson_r = {}
     for c in correlations:
         if c["method"] == "pearson":
@@ -343,7 +372,8 @@ def compute(table, settings, rng: np.random.Generator, partial: dict | None = No
             if not complete.size:
                 continue  # nothing to draw
             n_codes = len(table.groups)
-            picked = complete[_sample(table.codes[complete], n_codes, SCATTER_LIMIT, rng)]
+            limit = min(SCATTER_LIMIT, max(300, SCATTER_BUDGET // max(1, len(measures))))
+            picked = complete[_sample(table.codes[complete], n_codes, limit, rng)]
             scatter.append(
                 {
                     "x": x_name,
