@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import os
 import shutil
 import textwrap
 from pathlib import Path
@@ -56,3 +57,23 @@ def example_site(tmp_path_factory) -> Path:
     out = work / "site"
     sitebuild.build(project, out=out)
     return out
+
+
+@pytest.fixture(scope="module")
+def browser():
+    """Debian's Chromium under Playwright; a missing browser fails under CI, never skips."""
+    from browser import LAUNCH_ARGS, chromium_path
+
+    path = chromium_path()
+    if path is None:
+        if os.environ.get("CI"):
+            pytest.fail(
+                "Chromium is missing: install the Debian package 'chromium' (CI must not skip)."
+            )
+        pytest.skip("Chromium is not installed (set CI=1 to make this a failure)")
+    from playwright.sync_api import sync_playwright
+
+    with sync_playwright() as pw:
+        launched = pw.chromium.launch(executable_path=path, args=LAUNCH_ARGS, headless=True)
+        yield launched
+        launched.close()

@@ -2,34 +2,16 @@
 
 from __future__ import annotations
 
-import os
 import shutil
 import zipfile
 from pathlib import Path
 
 import pytest
 
-from browser import LAUNCH_ARGS, chromium_path, visit_pages
+from browser import visit_pages
 from conftest import write_project
 
 pytestmark = pytest.mark.browser
-
-
-@pytest.fixture(scope="module")
-def browser():
-    path = chromium_path()
-    if path is None:
-        if os.environ.get("CI"):
-            pytest.fail(
-                "Chromium is missing: install the Debian package 'chromium' (CI must not skip)."
-            )
-        pytest.skip("Chromium is not installed (set CI=1 to make this a failure)")
-    from playwright.sync_api import sync_playwright
-
-    with sync_playwright() as pw:
-        launched = pw.chromium.launch(executable_path=path, args=LAUNCH_ARGS, headless=True)
-        yield launched
-        launched.close()
 
 
 def assert_clean(visits):

@@ -13,13 +13,12 @@ from __future__ import annotations
 import csv
 import io
 import json
-import os
 
 import pytest
 
 import sitebuild
 
-from browser import LAUNCH_ARGS, chromium_path, visit_pages
+from browser import visit_pages
 from conftest import write_project
 
 pytestmark = pytest.mark.browser
@@ -65,23 +64,6 @@ ACTIVE = (
     "script", "img", "iframe", "frame", "object", "embed", "style", "link", "meta", "base",
     "form", "input", "button", "textarea", "video", "audio", "source", "svg", "foreignObject",
 )  # fmt: skip
-
-
-@pytest.fixture(scope="module")
-def browser():
-    path = chromium_path()
-    if path is None:
-        if os.environ.get("CI"):
-            pytest.fail(
-                "Chromium is missing: install the Debian package 'chromium' (CI must not skip)."
-            )
-        pytest.skip("Chromium is not installed (set CI=1 to make this a failure)")
-    from playwright.sync_api import sync_playwright
-
-    with sync_playwright() as pw:
-        launched = pw.chromium.launch(executable_path=path, args=LAUNCH_ARGS, headless=True)
-        yield launched
-        launched.close()
 
 
 def toml(text: str) -> str:

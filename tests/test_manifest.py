@@ -131,3 +131,17 @@ def test_no_manifest_in_folder(tmp_path):
 def test_equivalence_margin_must_name_a_measure(tmp_path):
     message = manifest_error(tmp_path, BASE + 'equivalence_margin = { "depth" = 1.0 }\n')
     assert "'depth'" in message and "not one of the measures" in message
+
+
+def test_a_folder_of_parquet_parts_is_accepted_as_a_dataset_file(tmp_path):
+    root = write_project(tmp_path / "p", BASE.replace("data/lines.csv", "data/parts"), {})
+    (root / "data" / "parts").mkdir(parents=True)
+    manifest = load_manifest(root)
+    assert manifest.datasets[0].path.is_dir()
+
+
+def test_a_folder_is_not_accepted_as_notes(tmp_path):
+    root = write_project(tmp_path / "p", BASE + 'notes = "notes"\n', {"data/lines.csv": SIMPLE_CSV})
+    (root / "notes").mkdir()
+    with pytest.raises(SitebuildError, match="does not exist"):
+        load_manifest(root)

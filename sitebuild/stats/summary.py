@@ -87,6 +87,29 @@ def _quantile_sorted(values: np.ndarray, q: float) -> float:
     return below * (1.0 - weight) + above * weight
 
 
+def spread_fields(out: dict, reasons: dict, sd: float, n: int, mean: float, level: float) -> bool:
+    """Fill sd, se and the Student-t mean interval into ``out``; False when sd overflowed.
+
+    Where the sd, or the interval's ends, exceed the largest double, the fields stay None and
+    ``reasons`` says why (shape fields too, which need the sd).
+    """
+    from scipy import stats
+
+    if not math.isfinite(sd):
+        for key in ("sd", "se", "ci", "share_within", "skewness", "excess_kurtosis"):
+            reasons[key] = "the spread exceeds the largest double-precision number"
+        reasons["normality"] = reasons["sd"]
+        return False
+    out["sd"] = sd
+    out["se"] = sd / math.sqrt(n)
+    half = float(stats.t.ppf((1 + level) / 2, n - 1)) * out["se"]
+    out["ci_low"], out["ci_high"] = mean - half, mean + half
+    if not (math.isfinite(out["ci_low"]) and math.isfinite(out["ci_high"])):
+        out["ci_low"] = out["ci_high"] = None
+        reasons["ci"] = "the interval exceeds the largest double-precision number"
+    return True
+
+
 def describe_sorted(values: np.ndarray, level: float = 0.95, missing: int = 0) -> Summary:
     """Return the :class:`Summary` of a sample whose finite values are already sorted ascending.
 
@@ -166,19 +189,8 @@ def describe_sorted(values: np.ndarray, level: float = 0.95, missing: int = 0) -
     squares = deviations * deviations
     m2 = float(squares.sum())
     sd_s = math.sqrt(m2 / (n - 1))
-    sd = sd_s * unit
-    if not math.isfinite(sd):
-        for key in ("sd", "se", "ci", "share_within", "skewness", "excess_kurtosis"):
-            reasons[key] = "the spread exceeds the largest double-precision number"
-        reasons["normality"] = reasons["sd"]
+    if not spread_fields(out, reasons, sd_s * unit, n, mean, level):
         return Summary(**out)
-    out["sd"] = sd
-    out["se"] = sd / math.sqrt(n)
-    half = float(stats.t.ppf((1 + level) / 2, n - 1)) * out["se"]
-    out["ci_low"], out["ci_high"] = mean - half, mean + half
-    if not (math.isfinite(out["ci_low"]) and math.isfinite(out["ci_high"])):
-        out["ci_low"] = out["ci_high"] = None
-        reasons["ci"] = "the interval exceeds the largest double-precision number"
     # The scaled values lie within [-1, 1], so the largest magnitude is 1 here.
     if sd_s == 0 or sd_s <= max(abs(mean_s), 1.0) * 1e-14:
         out.update(sd=0.0, se=0.0, ci_low=mean, ci_high=mean)

@@ -842,25 +842,15 @@ def _large_summary(every: Moments, label, level, at: dict, within, acc, missing,
     out["outliers"] = below + above
     out["whisker_low"] = float(acc["whisker_low"][label]) if below < n else None
     out["whisker_high"] = float(acc["whisker_high"][label]) if above < n else None
-    from ..stats.summary import median_ci_ranks
+    from ..stats.summary import median_ci_ranks, spread_fields
 
     ranks = median_ci_ranks(n, level)
     out["median_ci_low"] = at[ranks[0] - 1]
     out["median_ci_high"] = at[ranks[1] - 1]
     out["median_ci_level"] = ranks[2]
     sd = math.sqrt(m2 / (n - 1))
-    if not math.isfinite(sd):
-        for key in ("sd", "se", "ci", "share_within", "skewness", "excess_kurtosis"):
-            reasons[key] = "the spread exceeds the largest double-precision number"
-        reasons["normality"] = reasons["sd"]
+    if not spread_fields(out, reasons, sd, n, mean, level):
         return Summary(**out)
-    out["sd"] = sd
-    out["se"] = sd / math.sqrt(n)
-    half = float(stats.t.ppf((1 + level) / 2, n - 1)) * out["se"]
-    out["ci_low"], out["ci_high"] = mean - half, mean + half
-    if not (math.isfinite(out["ci_low"]) and math.isfinite(out["ci_high"])):
-        out["ci_low"] = out["ci_high"] = None
-        reasons["ci"] = "the interval exceeds the largest double-precision number"
     # The same "all equal" rule as describe_sorted: sd against the power of two just below
     # the largest magnitude (the unit it scales values by).
     largest = max(abs(low), abs(high))
