@@ -17,7 +17,7 @@ from .errors import SitebuildError
 
 MANIFEST_NAME = "manifest.toml"
 ADJUST_METHODS = ("holm", "bh", "bonferroni", "none")
-ENGINES = ("memory", "stream", "dask")
+ENGINES = ("auto", "memory", "stream", "dask")
 DEFAULT_OUTPUT = "site_output"
 
 SITE_KEYS = {
@@ -77,7 +77,7 @@ class DatasetSpec:
     smooth_degree: int = 1
     smooth_robust: int = 0
     permutations: int = 0
-    engine: str = "memory"
+    engine: str = "auto"
 
     @property
     def slug(self) -> str:
@@ -398,7 +398,7 @@ def load_manifest(project: str | Path) -> Manifest:
         permutations = entry.get("permutations", 0)
         if not 0 <= permutations <= 1_000_000:
             check.fail(label, "permutations", f"is {permutations}", "use 0 (off) to 1000000", index)
-        engine = entry.get("engine", "memory")
+        engine = entry.get("engine", "auto")
         if engine not in ENGINES:
             check.fail(label, "engine", f"is '{engine}'", "use one of " + ", ".join(ENGINES), index)
         spec = DatasetSpec(

@@ -355,3 +355,17 @@ def test_csv_pieces_never_cut_a_quoted_newline(tmp_path, monkeypatch):
         clean(summaries.compute(memory, site, None, {})),
         clean(summaries.compute(streamed, site, None, {})),
     )
+
+
+def test_engine_for_long_parquet_files_and_explicit_memory(tmp_path, monkeypatch):
+    import pandas as pd
+
+    import sitebuild.ingest as ingest
+
+    path = tmp_path / "t.parquet"
+    pd.DataFrame({"g": ["a", "b", "a"], "v": [1.0, 2.0, 3.0]}).to_parquet(path)
+    spec = DatasetSpec(name="t", file="t.parquet", path=path, group="g", measures=("v",))
+    assert spec.engine == "auto" and engine_for(spec) == "memory"
+    monkeypatch.setattr(ingest, "STREAM_ROWS", 2)  # the footer says 3 rows
+    assert engine_for(spec) == "stream"
+    assert engine_for(dataclasses.replace(spec, engine="memory")) == "memory"
