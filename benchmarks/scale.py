@@ -48,7 +48,7 @@ class Case:
     groups: int
     measures: int  # 4 = the four shapes; more = the shapes repeated with new parameters
     fmt: str  # "csv", "parquet" or "parquet-folder"
-    engine: str = "memory"
+    engine: str = "auto"  # the manifest default: Parquet over 5M rows streams
     memory_limit: int | None = None  # bytes of address space for the build process
     driver: str = "build"  # "build": the whole build; "stream": read + summaries only
     targets: dict = field(default_factory=dict)
@@ -180,7 +180,7 @@ def generate(case: Case) -> Path:
         )
         done.write_text("ok")
     names = ", ".join(json.dumps(m, ensure_ascii=False) for m in measure_names(case.measures))
-    engine = f'engine = "{case.engine}"\n' if case.engine != "memory" else ""
+    engine = f'engine = "{case.engine}"\n' if case.engine != "auto" else ""
     (folder / "manifest.toml").write_text(
         f'[site]\ntitle = "Scale benchmark: {case.name}"\nseed = {SEED}\n\n'
         f'[[datasets]]\nname = "Panels {case.name}"\nfile = "{path.relative_to(folder)}"\n'
