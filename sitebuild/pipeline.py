@@ -309,7 +309,7 @@ def render_key(computed_id: str, changes: dict, history: list, manifest: Manifes
     ``computed_id`` identifies the computed numbers (see :func:`changes.results_id`);
     ``changes`` and ``history`` complete the results tree the pages show.
     """
-    from .site.render import build_time, layout_files
+    from .site.render import build_time, layout_files, packaged_layouts
 
     digest = hashlib.sha256()
     parts = {
@@ -326,8 +326,13 @@ def render_key(computed_id: str, changes: dict, history: list, manifest: Manifes
     for spec in manifest.datasets:
         if spec.notes_path is not None:
             digest.update(b"notes\0" + file_digest(spec.notes_path).encode("ascii"))
+    # Layouts by their place among the layouts (packaged or the project's), not by absolute
+    # path: the same site from an installed copy and from a checkout has the same key.
+    roots = {"packaged": packaged_layouts(), "project": manifest.root / "layouts"}
     for path in layout_files(manifest):
-        digest.update(str(path).encode("utf-8") + b"\0" + file_digest(path).encode("ascii"))
+        where, root = next((k, r) for k, r in roots.items() if path.is_relative_to(r))
+        name = f"{where}/{path.relative_to(root).as_posix()}"
+        digest.update(name.encode("utf-8") + b"\0" + file_digest(path).encode("ascii"))
     return digest.hexdigest()
 
 
