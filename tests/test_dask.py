@@ -35,7 +35,7 @@ def client():
 
 
 def test_dask_on_partitioned_parquet_matches_in_memory(tmp_path, client):
-    from tests.test_stream import _compare, _frame
+    from test_stream import _compare, _frame
 
     frame = _frame(n=80_000, seed=11)
     parts = tmp_path / "parts"
@@ -68,8 +68,9 @@ def test_dask_on_partitioned_parquet_matches_in_memory(tmp_path, client):
 
 
 def test_dask_sample_is_bounded(tmp_path, client, monkeypatch):
+    from test_stream import _frame
+
     from sitebuild.streaming import engine
-    from tests.test_stream import _frame
 
     monkeypatch.setattr(engine, "SAMPLE_PER_GROUP", 300)
     frame = _frame(n=10_000, seed=12)
