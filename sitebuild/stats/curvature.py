@@ -14,9 +14,13 @@ from .loess import loess
 # the degrees of freedom each one uses.
 MIN_SMOOTH_R2 = 0.5
 MIN_GAIN = 0.2
+# ...and the gain must pass an approximate F-test of line against smooth, so that a handful
+# of noisy points cannot look curved by chance (the false-alarm rate is measured in tests).
+GAIN_ALPHA = 0.01
 RULE = (
     "curved when the smooth's adjusted R² is at least 0.5 and at least 0.2 above the "
-    "straight line's adjusted R²"
+    "straight line's adjusted R², and an approximate F-test of the line against the smooth "
+    "gives p below 0.01"
 )
 
 
@@ -155,7 +159,39 @@ def curvature_check(
             "too few points for the smooth's degrees of freedom",
         )
     curved = adj_smooth >= MIN_SMOOTH_R2 and adj_smooth - adj_line >= MIN_GAIN
+    if curved:
+        curved = gain_p(linear_r2, smooth_r2, n, smooth_df) < GAIN_ALPHA
     return CurvatureCheck(n, linear_r2, smooth_r2, adj_line, adj_smooth, smooth_df, curved)
+
+
+def gain_p(linear_r2: float, smooth_r2: float, n: int, smooth_df: float) -> float:
+    """Return the p-value of the approximate F-test that the smooth fits no better than the line.
+
+    Notes
+    -----
+    F = [(R²_s − R²_l) / (d_l − d_s)] / [(1 − R²_s) / d_s] on (d_l − d_s, d_s) degrees of
+    freedom, with d_l = n − 2 and d_s = delta1, the smooth's residual degrees of freedom; the
+    F reference distribution is the approximation Cleveland & Devlin (1988, section 4) use for
+    comparing a loess fit with a parametric one.
+
+    References
+    ----------
+    Cleveland, W. S. & Devlin, S. J. (1988). Locally weighted regression. JASA 83(403).
+
+    Examples
+    --------
+    >>> gain_p(0.0, 0.9, 50, 44.0) < 1e-6
+    True
+    """
+    from scipy import stats
+
+    extra = (n - 2) - smooth_df
+    if extra <= 0 or smooth_df <= 0:
+        return 1.0
+    if smooth_r2 >= 1.0:
+        return 0.0
+    f = ((smooth_r2 - linear_r2) / extra) / ((1.0 - smooth_r2) / smooth_df)
+    return float(stats.f.sf(f, extra, smooth_df)) if f > 0 else 1.0
 
 
 def strong_but_not_straight(
