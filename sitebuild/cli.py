@@ -36,7 +36,8 @@ def _dataset_lines(reports) -> list[str]:
         for column, problem in sorted(d.unparsed.items()):
             examples = ", ".join(repr(e) for e in problem["examples"])
             lines.append(
-                f"    {problem['count']:,} values in '{column}' not numbers (e.g. {examples}); counted as missing"
+                f"    {problem['count']:,} {'value' if problem['count'] == 1 else 'values'} in "
+                f"'{column}' not numbers (e.g. {examples}); counted as missing"
             )
         for warning in d.warnings:
             lines.append(f"    warning: {warning}")

@@ -584,7 +584,7 @@ def test_d20_huge_text_cell_in_a_measure(project, capsys):
     data = "g,v,w\nA," + "x" * 1_000_000 + ",2\nA,1,3\nA,2,2\nB,2,4\nB,3,5\n"
     built = accepted(project, capsys, files={"data/d.csv": data})
     assert built.ds["source"]["unparsed"]["v"] == {"count": 1, "examples": ["x" * 40]}
-    assert "1 values in 'v' not numbers" in built.stdout
+    assert "1 value in 'v' not numbers" in built.stdout
     assert len(built.page) < 500_000
 
 
