@@ -198,7 +198,7 @@ def analyse(table, manifest: Manifest, timer: Timer, say=None) -> dict:
 
 def summarised_notices(datasets: list[dict]) -> list[str]:
     """Return one line per dataset whose many groups made the pages summarise, saying how."""
-    from .sections.summaries import MAX_CHART_GROUPS
+    from .sections import MAX_CHART_GROUPS
 
     lines = []
     for ds in datasets:

@@ -17,6 +17,7 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 SECTION_NAMES = ("summaries", "relationships", "comparisons")
+MAX_CHART_GROUPS = 30  # groups drawn in distribution charts; tables keep every group
 
 
 @dataclass(frozen=True)

@@ -7,10 +7,9 @@ import numpy as np
 from ..ingest import Table
 from ..manifest import SiteSettings
 from ..stats.summary import NORMAL_WITHIN, Summary, describe_sorted, histogram_edges
-from . import Chart, DataTable
+from . import MAX_CHART_GROUPS, Chart, DataTable
 
 MAX_OUTLIER_POINTS = 20  # per side per group: the most extreme values, enough to see them
-MAX_CHART_GROUPS = 30  # groups drawn in distribution charts; tables keep every group
 
 SUMMARY_FIELDS = (
     "n", "missing", "mean", "sd", "se", "ci_low", "ci_high", "median", "median_ci_low",
