@@ -110,13 +110,15 @@ def _correlations(table, names, settings, rng, chosen: list[int]) -> tuple[list[
         for (i, j, c), p_adj in zip(result.pairs, adjusted, strict=True):
             a, b = names[i], names[j]
             note = _note_for(c.reason, a, b)
-            if c.r is not None and c.method == "kendall":
-                note = "no interval is computed for Kendall's tau-b"
-                if c.n_available:
-                    note += (
-                        f"; computed on a random sample of {c.n:,} of the "
-                        f"{c.n_available:,} complete pairs"
-                    )
+            if c.r is not None and c.method == "kendall" and c.n_available:
+                note = (
+                    f"computed on a random sample of {c.n:,} of the {c.n_available:,} "
+                    "complete pairs"
+                )
+                if c.reason:
+                    note += f"; {c.reason}"
+            elif c.r is not None and c.method == "kendall" and c.reason:
+                note = c.reason
             elif c.r is not None and c.ci_low is None:
                 note = "the interval needs at least 4 pairs"
             out.append(
@@ -520,7 +522,8 @@ def tables(dataset: dict, settings) -> list[DataTable]:
                 rows=rows,
                 caption=(
                     f"{round(100 * settings.confidence)}% intervals by Fisher's z (Spearman with "
-                    "the Bonett–Wright standard error); " + family["description"]
+                    "the Bonett–Wright standard error, Kendall with that of Fieller, Hartley & Pearson); "
+                    + family["description"]
                 ),
             )
         )

@@ -11,6 +11,7 @@ and a ``reason``; nothing here returns NaN.
 
 from __future__ import annotations
 
+import math
 import warnings
 from dataclasses import dataclass
 
@@ -221,19 +222,23 @@ def kendall(
     limit: int = KENDALL_LIMIT,
     rng: np.random.Generator | None = None,
 ) -> Correlation:
-    """Return Kendall's tau-b and its two-sided p-value (no interval).
+    """Return Kendall's tau-b, its two-sided p-value and a Fisher-z interval.
 
     Notes
     -----
     tau_b = (C - D) / sqrt((n0 - n1)(n0 - n2)), n0 = n(n-1)/2, n1 and n2 the tied pairs in x
     and y (Kendall 1945). Computed by scipy.stats.kendalltau (O(n log n)); its p-value is
     exact for small untied samples, else the normal approximation with tie-corrected variance.
+    Interval: tanh(atanh(tau) -/+ z_{(1+level)/2} sqrt(0.437 / (n - 4))), the standard error
+    of Fieller, Hartley & Pearson (1957), for n >= 5.
     Above ``limit`` complete pairs a random sample of ``limit`` pairs drawn with ``rng`` is
     used; ``n`` is then the sample size and ``n_available`` the total.
 
     References
     ----------
     Kendall, M. G. (1945). The treatment of ties in ranking problems. Biometrika 33(3).
+    Fieller, E. C., Hartley, H. O. & Pearson, E. S. (1957). Tests for rank correlation
+    coefficients. I. Biometrika 44(3/4), 470-481.
 
     Examples
     --------
@@ -257,20 +262,30 @@ def kendall(
     from scipy import stats
 
     result = stats.kendalltau(x, y, variant="b")
-    r = float(result.statistic)
+    r = float(min(1.0, max(-1.0, float(result.statistic))))
     p = float(result.pvalue)
-    reason = "no interval is computed for Kendall's tau-b"
+    n = int(x.size)
+    low = high = se = None
+    reason = None
+    if n < 5:
+        reason = "the interval needs at least 5 pairs"
+    elif abs(r) >= 1.0:
+        reason = "no interval when every pair agrees (tau-b = ±1)"
+    else:
+        se = math.sqrt(0.437 / (n - 4))
+        lo, hi = _fisher_interval(np.array([r]), np.array([se]), level)
+        low, high = float(lo[0]), float(hi[0])
     return Correlation(
         "kendall",
-        int(x.size),
-        float(min(1.0, max(-1.0, r))),
-        None,
-        None,
+        n,
+        r,
+        low,
+        high,
         min(1.0, max(0.0, p)),
         level,
-        None,
+        "fisher-z, Fieller-Hartley-Pearson se" if se is not None else None,
         reason,
-        n_all if n_all > x.size else None,
+        n_all if n_all > n else None,
     )
 
 
