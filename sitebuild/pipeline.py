@@ -309,7 +309,7 @@ def render_key(computed_id: str, changes: dict, history: list, manifest: Manifes
     ``computed_id`` identifies the computed numbers (see :func:`changes.results_id`);
     ``changes`` and ``history`` complete the results tree the pages show.
     """
-    from .site.render import build_time, layout_files, packaged_layouts
+    from .site.render import build_time
 
     digest = hashlib.sha256()
     parts = {
@@ -326,14 +326,67 @@ def render_key(computed_id: str, changes: dict, history: list, manifest: Manifes
     for spec in manifest.datasets:
         if spec.notes_path is not None:
             digest.update(b"notes\0" + file_digest(spec.notes_path).encode("ascii"))
-    # Layouts by their place among the layouts (packaged or the project's), not by absolute
-    # path: the same site from an installed copy and from a checkout has the same key.
+    digest.update(layouts_digest(manifest).encode("ascii"))
+    return digest.hexdigest()
+
+
+def layouts_digest(manifest: Manifest) -> str:
+    """Return a SHA-256 of every layout file a render may read (packaged and the project's).
+
+    Layouts are named by their place among the layouts, not by absolute path: the same site
+    from an installed copy and from a checkout has the same key.
+    """
+    from .site.render import layout_files, packaged_layouts
+
+    digest = hashlib.sha256()
     roots = {"packaged": packaged_layouts(), "project": manifest.root / "layouts"}
     for path in layout_files(manifest):
         where, root = next((k, r) for k, r in roots.items() if path.is_relative_to(r))
         name = f"{where}/{path.relative_to(root).as_posix()}"
         digest.update(name.encode("utf-8") + b"\0" + file_digest(path).encode("ascii"))
     return digest.hexdigest()
+
+
+class PageMemo:
+    """Rendered dataset pages kept in the cache, keyed by everything such a page reads.
+
+    A page reads its dataset's results, its notes, the navigation, the site settings, the
+    layouts and the code; when none changed, its bytes (and its CSV files) are reused.
+    """
+
+    def __init__(self, cache, manifest: Manifest, results: dict):
+        from .site.render import build_time
+
+        self.cache = cache
+        self.reused: list[str] = []
+        self.base = canonical(
+            {
+                "site": dataclasses.asdict(manifest.site),
+                "version": __version__,
+                "code": code_fingerprint(),
+                "built_at": build_time(),
+                "layouts": layouts_digest(manifest),
+                "nav": [(ds["name"], ds["slug"]) for ds in results["datasets"]],
+                "has_changes": "changes" in results,
+            }
+        )
+
+    def key(self, ds: dict, spec) -> str:
+        digest = hashlib.sha256(self.base.encode("utf-8"))
+        digest.update(canonical(ds).encode("utf-8"))
+        if spec.notes_path is not None:
+            digest.update(b"notes\0" + file_digest(spec.notes_path).encode("ascii"))
+        return digest.hexdigest()
+
+    def get(self, key: str, name: str) -> dict[str, bytes] | None:
+        found = self.cache.load_checked("pages", key)
+        if found is None:
+            return None
+        self.reused.append(name)
+        return {path: text.encode("utf-8") for path, text in found[0].items()}
+
+    def put(self, key: str, files: dict[str, bytes]) -> None:
+        self.cache.store("pages", key, {path: data.decode("utf-8") for path, data in files.items()})
 
 
 def _sizes(sizes: dict[str, int]) -> dict:
@@ -486,7 +539,10 @@ def build(
                 if say:
                     say("rendering pages")
                 bundle = cache.chart_bundle(render.chart_bundle)
-                files = render.render_site(results, manifest, bundle=bundle)
+                memo = PageMemo(cache, manifest, results)
+                files = render.render_site(results, manifest, bundle=bundle, pages=memo)
+                if say and memo.reused:
+                    say(f"pages reused unchanged: {', '.join(memo.reused)}")
                 unchanged = publish.same_as_disk(files, target)
                 sizes = {name: len(data) for name, data in files.items()}
             else:

@@ -217,3 +217,21 @@ def test_noop_rebuild_does_not_import_heavy_libraries(project):
         check=True,
     )
     assert out.stdout.strip() == "False []"
+
+
+def test_only_the_changed_datasets_page_is_rendered_again(project, tmp_path):
+    # Asserted through the progress lines, and checked for correctness against a fresh build
+    # of the same inputs into another folder: every byte must agree.
+    build(project)
+    append_row(project / "data/second.csv", "L998,spelt blend,61,1750,5")
+    lines: list[str] = []
+    again = build(project, progress=lines.append)
+    reused = [line for line in lines if "pages reused unchanged" in line]
+    assert reused and "loaves-by-flour.html" in reused[0] and "second-batch" not in reused[0]
+    fresh = build(project, out=tmp_path / "fresh", fresh=True)
+    # The overview, the change page and results.json say what moved since each folder's own
+    # previous build, so they differ; every dataset page and table must be the same bytes.
+    moving = {"index.html", "changes.html", "results.json"}
+    ours = {k: v[0] for k, v in snapshot(again.out).items() if k not in moving}
+    theirs = {k: v[0] for k, v in snapshot(fresh.out).items() if k not in moving}
+    assert ours == theirs and "loaves-by-flour.html" in ours

@@ -252,11 +252,13 @@ def render_site(
     manifest: Manifest,
     extra_pages: dict | None = None,
     bundle: bytes | None = None,
+    pages=None,
 ) -> dict[str, bytes]:
     """Return every file of the site, path relative to the site root → bytes.
 
     ``bundle`` is the chart script (Vega, Vega-Lite, vega-embed); made by vl-convert when
-    not given.
+    not given. ``pages`` (optional, see :class:`sitebuild.pipeline.PageMemo`) hands back a
+    dataset page and its CSV files when nothing the page reads has changed.
     """
     from ..results import dumps, schema  # numpy comes with it: keep it off the no-op path
 
@@ -264,11 +266,18 @@ def render_site(
     files: dict[str, bytes] = {}
     common = common_context(results, manifest)
     for ds, spec in zip(results["datasets"], manifest.datasets, strict=True):
+        name = f"{ds['slug']}.html"
+        key = pages.key(ds, spec) if pages is not None else None
+        kept = pages.get(key, name) if pages is not None else None
+        if kept is not None:
+            files.update(kept)
+            continue
         context, csv_files = dataset_page(env, common, ds, spec)
-        files.update(csv_files)
-        files[f"{ds['slug']}.html"] = (
-            env.get_template("dataset.html").render(**context).encode("utf-8")
-        )
+        made = dict(csv_files)
+        made[name] = env.get_template("dataset.html").render(**context).encode("utf-8")
+        files.update(made)
+        if pages is not None:
+            pages.put(key, made)
     pages = dict(extra_pages or {})
     changes = results.get("changes")
     if changes is not None:
