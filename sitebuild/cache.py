@@ -17,6 +17,16 @@ from pathlib import Path
 
 from . import __version__
 
+
+def file_sha256(path: Path) -> str:
+    """Return the hex SHA-256 of the file's bytes (the digest results.json records)."""
+    digest = hashlib.sha256()
+    with open(path, "rb") as handle:
+        for chunk in iter(lambda: handle.read(1 << 20), b""):
+            digest.update(chunk)
+    return digest.hexdigest()
+
+
 CACHE_DIR = ".sitebuild_cache"
 FORMAT = 2
 # Site settings that only change how pages look, not any number: excluded from dataset keys.

@@ -14,11 +14,13 @@ from .errors import SitebuildError
 
 
 def _size(n: int) -> str:
-    for unit in ("B", "KB", "MB", "GB"):
-        if n < 1024 or unit == "GB":
-            return f"{n:.0f} {unit}" if unit == "B" else f"{n:.1f} {unit}"
+    if n < 1024:
+        return f"{n} B"
+    for unit in ("KB", "MB"):
         n /= 1024
-    raise AssertionError("unreachable")
+        if n < 1024:
+            return f"{n:.1f} {unit}"
+    return f"{n / 1024:.1f} GB"
 
 
 def _dataset_lines(reports) -> list[str]:

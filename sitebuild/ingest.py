@@ -8,7 +8,6 @@ measure never drops the row for the others. Everything that happened is in the
 from __future__ import annotations
 
 import csv
-import hashlib
 import io
 import re
 from dataclasses import dataclass, field
@@ -16,6 +15,7 @@ from pathlib import Path
 
 import numpy as np
 
+from .cache import file_sha256
 from .errors import SitebuildError
 from .manifest import DatasetSpec
 
@@ -117,15 +117,6 @@ def natural_key(label: str):
     """Sort key that puts 'Line 2' before 'Line 10' and numbers before words."""
     parts = re.split(r"(\d+)", label)
     return [(0, int(p), p) if p.isdigit() else (1, 0, p.casefold()) for p in parts]
-
-
-def file_sha256(path: Path) -> str:
-    """Return the hex SHA-256 of the file's bytes."""
-    digest = hashlib.sha256()
-    with open(path, "rb") as handle:
-        for chunk in iter(lambda: handle.read(1 << 20), b""):
-            digest.update(chunk)
-    return digest.hexdigest()
 
 
 def _decode_head(path: Path, raw: bytes) -> tuple[str, str, list[str]]:
@@ -322,7 +313,6 @@ def read_frame(spec: DatasetSpec):
         )
     _check_columns(spec, header)
     decimal_comma = delimiter == ";"
-    numeric = [c for c in needed if c != spec.group]
     positions = [header.index(c) for c in needed]
 
     def read(enc: str):
@@ -361,7 +351,6 @@ def read_frame(spec: DatasetSpec):
             f"{spec.file}: the file has no columns; export it again with a header row."
         ) from None
     frame.columns = [header[p] for p in sorted(positions)]
-    del numeric
     extra = first_overlong_line(path, delimiter, len(header))
     if extra is not None:
         raise SitebuildError(

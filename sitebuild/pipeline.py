@@ -9,7 +9,6 @@ from __future__ import annotations
 import dataclasses
 import hashlib
 import importlib
-import importlib.util
 import json
 import os
 import sys
@@ -20,10 +19,18 @@ from dataclasses import dataclass, field
 from pathlib import Path
 
 from . import __version__
-from .cache import Cache, cache_folder, canonical, code_fingerprint, dataset_key, vl_convert_version
+from .cache import (
+    Cache,
+    cache_folder,
+    canonical,
+    code_fingerprint,
+    dataset_key,
+    file_sha256,
+    vl_convert_version,
+)
 from .errors import SitebuildError
 from .manifest import Manifest, load_manifest
-from .sections import SECTION_NAMES
+from .sections import PARALLEL_ROWS, SECTION_NAMES
 
 
 @dataclass(frozen=True)
@@ -117,8 +124,7 @@ class Timer:
 
 def section_modules() -> list:
     """Return the section modules in page order."""
-    names = [n for n in SECTION_NAMES if importlib.util.find_spec(f"sitebuild.sections.{n}")]
-    return [importlib.import_module(f"sitebuild.sections.{name}") for name in names]
+    return [importlib.import_module(f"sitebuild.sections.{name}") for name in SECTION_NAMES]
 
 
 def dataset_rng(seed: int, dataset: str, section: int):
@@ -145,9 +151,6 @@ def _dataset_report(table, reused: bool = False) -> DatasetReport:
         warnings=report.warnings,
         reused=reused,
     )
-
-
-PARALLEL_ROWS = 200_000  # below this, threads cost more than they save
 
 
 def analyse(table, manifest: Manifest, timer: Timer, say=None) -> dict:
@@ -277,11 +280,7 @@ def file_digest(path: Path) -> str:
         from .streaming.source import source_sha256
 
         return source_sha256(path)
-    digest = hashlib.sha256()
-    with open(path, "rb") as handle:
-        for chunk in iter(lambda: handle.read(1 << 20), b""):
-            digest.update(chunk)
-    return digest.hexdigest()
+    return file_sha256(path)
 
 
 def previous_results(target: Path) -> tuple[dict | None, str | None]:
@@ -354,11 +353,17 @@ class PageMemo:
     layouts and the code; when none changed, its bytes (and its CSV files) are reused.
     """
 
-    def __init__(self, cache, manifest: Manifest, results: dict):
+    def __init__(self, cache, manifest: Manifest, results: dict, checksums: list[str]):
         from .site.render import build_time
 
         self.cache = cache
         self.reused: list[str] = []
+        # Each dataset's results are already identified by their cache checksum (the SHA-256
+        # of their canonical JSON), so a large dataset is not encoded again here.
+        self.checksums = {
+            ds["slug"]: checksum
+            for ds, checksum in zip(results["datasets"], checksums, strict=True)
+        }
         self.base = canonical(
             {
                 "site": dataclasses.asdict(manifest.site),
@@ -373,7 +378,7 @@ class PageMemo:
 
     def key(self, ds: dict, spec) -> str:
         digest = hashlib.sha256(self.base.encode("utf-8"))
-        digest.update(canonical(ds).encode("utf-8"))
+        digest.update(self.checksums[ds["slug"]].encode("ascii"))
         if spec.notes_path is not None:
             digest.update(b"notes\0" + file_digest(spec.notes_path).encode("ascii"))
         return digest.hexdigest()
@@ -539,7 +544,7 @@ def build(
                 if say:
                     say("rendering pages")
                 bundle = cache.chart_bundle(render.chart_bundle)
-                memo = PageMemo(cache, manifest, results)
+                memo = PageMemo(cache, manifest, results, checksums)
                 files = render.render_site(results, manifest, bundle=bundle, pages=memo)
                 if say and memo.reused:
                     say(f"pages reused unchanged: {', '.join(memo.reused)}")

@@ -42,26 +42,21 @@ def schema() -> dict:
     """Return the full JSON Schema of results.json: the core plus each section's fragment."""
     base = resources.files("sitebuild") / "schema"
     core = json.loads((base / "results.schema.json").read_text(encoding="utf-8"))
-    dataset = core["$defs"]["dataset"]
-    sections = base / "sections"
-    if sections.is_dir():
-        for fragment_file in sorted(sections.iterdir(), key=lambda p: p.name):
-            if not fragment_file.name.endswith(".json"):
-                continue
-            fragment = json.loads(fragment_file.read_text(encoding="utf-8"))
-            dataset["properties"].update(fragment.get("properties", {}))
-            dataset["required"] = sorted(
-                set(dataset["required"]) | set(fragment.get("required", []))
-            )
-            core["$defs"].update(fragment.get("$defs", {}))
-    # Top-level keys (e.g. changes, history) come from schema/top/*.json the same way.
-    top = base / "top"
-    if top.is_dir():
-        for fragment_file in sorted(top.iterdir(), key=lambda p: p.name):
-            if not fragment_file.name.endswith(".json"):
-                continue
-            fragment = json.loads(fragment_file.read_text(encoding="utf-8"))
-            core["properties"].update(fragment.get("properties", {}))
-            core["required"] = sorted(set(core["required"]) | set(fragment.get("required", [])))
-            core["$defs"].update(fragment.get("$defs", {}))
+    # Section keys (schema/sections/*.json) join the dataset object; top-level keys such as
+    # changes and history (schema/top/*.json) join the root.
+    _merge_fragments(base / "sections", core["$defs"]["dataset"], core["$defs"])
+    _merge_fragments(base / "top", core, core["$defs"])
     return core
+
+
+def _merge_fragments(folder, target: dict, defs: dict) -> None:
+    """Merge each ``{"properties", "required", "$defs"}`` fragment in ``folder`` into ``target``."""
+    if not folder.is_dir():
+        return
+    for fragment_file in sorted(folder.iterdir(), key=lambda p: p.name):
+        if not fragment_file.name.endswith(".json"):
+            continue
+        fragment = json.loads(fragment_file.read_text(encoding="utf-8"))
+        target["properties"].update(fragment.get("properties", {}))
+        target["required"] = sorted(set(target["required"]) | set(fragment.get("required", [])))
+        defs.update(fragment.get("$defs", {}))

@@ -27,6 +27,24 @@ def write_project(root: Path, manifest: str, files: dict[str, str | bytes]) -> P
     return root
 
 
+def snapshot(folder: Path) -> dict[str, bytes]:
+    """Every file under ``folder`` with its bytes."""
+    return {
+        p.relative_to(folder).as_posix(): p.read_bytes()
+        for p in sorted(folder.rglob("*"))
+        if p.is_file()
+    }
+
+
+def leftovers(out: Path) -> list[str]:
+    """Staging, set-aside and lock files a build may leave beside its output folder."""
+    return sorted(
+        p.name
+        for p in out.parent.iterdir()
+        if p.name.startswith((f".{out.name}.new-", f".{out.name}.old-", f".{out.name}.lock"))
+    )
+
+
 SIMPLE_MANIFEST = """
 [site]
 title = "Test site"

@@ -26,7 +26,7 @@ import pytest
 
 from sitebuild.cli import main
 
-from conftest import REPO, write_project
+from conftest import REPO, leftovers, snapshot, write_project
 
 MANIFEST = """
 [site]
@@ -39,24 +39,6 @@ group = "g"
 measures = ["v", "w"]
 """
 GOOD_CSV = "g,v,w\nA,1,2\nA,2,3\nA,3,5\nB,3,4\nB,4,5\nB,6,6\n"
-
-
-def snapshot(folder: Path) -> dict[str, bytes]:
-    """Every file under ``folder`` with its bytes."""
-    return {
-        p.relative_to(folder).as_posix(): p.read_bytes()
-        for p in sorted(folder.rglob("*"))
-        if p.is_file()
-    }
-
-
-def leftovers(out: Path) -> list[str]:
-    """Staging, set-aside and lock files a build may leave beside its output folder."""
-    return sorted(
-        p.name
-        for p in out.parent.iterdir()
-        if p.name.startswith((f".{out.name}.new-", f".{out.name}.old-", f".{out.name}.lock"))
-    )
 
 
 @dataclass

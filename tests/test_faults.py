@@ -22,7 +22,7 @@ import sitebuild
 from sitebuild.cli import main
 from sitebuild.site import publish
 
-from conftest import REPO, write_project
+from conftest import REPO, leftovers, snapshot, write_project
 
 MANIFEST = """
 [site]
@@ -37,22 +37,6 @@ measures = ["v", "w"]
 GOOD_CSV = "g,v,w\nA,1,2\nA,2,3\nA,3,5\nB,3,4\nB,4,5\nB,6,6\n"
 CHANGED_CSV = GOOD_CSV + "C,7,1\nC,8,2\nC,9,4\n"
 IS_ROOT = hasattr(os, "geteuid") and os.geteuid() == 0
-
-
-def snapshot(folder: Path) -> dict[str, bytes]:
-    return {
-        p.relative_to(folder).as_posix(): p.read_bytes()
-        for p in sorted(folder.rglob("*"))
-        if p.is_file()
-    }
-
-
-def leftovers(out: Path) -> list[str]:
-    return sorted(
-        p.name
-        for p in out.parent.iterdir()
-        if p.name.startswith((f".{out.name}.new-", f".{out.name}.old-", f".{out.name}.lock"))
-    )
 
 
 @pytest.fixture

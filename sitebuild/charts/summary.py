@@ -7,6 +7,16 @@ from .theme import INK, MUTED, group_colour_scale, themed
 ROW_HEIGHT = 26
 
 
+def _group_colour(all_groups: list[str]) -> dict:
+    """Colour by group, the same colour for a group on every chart; no legend (axis names it)."""
+    return {
+        "field": "group",
+        "type": "nominal",
+        "scale": group_colour_scale(all_groups),
+        "legend": None,
+    }
+
+
 def _group_axis(groups: list[str]) -> dict:
     return {"field": "group", "type": "nominal", "sort": list(groups), "title": None}
 
@@ -25,12 +35,7 @@ def mean_intervals(rows: list[dict], all_groups: list[str], measure: str) -> dic
         if r["mean"] is not None
     ]
     shown = [r["group"] for r in rows]
-    colour = {
-        "field": "group",
-        "type": "nominal",
-        "scale": group_colour_scale(all_groups),
-        "legend": None,
-    }
+    colour = _group_colour(all_groups)
     y = _group_axis(shown)
     tooltip = [
         {"field": "group", "title": "Group"},
@@ -124,12 +129,7 @@ def histograms(dist: dict, shown: list[str], all_groups: list[str], measure: str
                     "title": None,
                     "header": {"labelAngle": 0, "labelAlign": "left", "labelLimit": 160},
                 },
-                "color": {
-                    "field": "group",
-                    "type": "nominal",
-                    "scale": group_colour_scale(all_groups),
-                    "legend": None,
-                },
+                "color": _group_colour(all_groups),
                 "tooltip": [
                     {"field": "group", "title": "Group"},
                     {"field": "start", "title": "From", "format": ".4~g"},
@@ -153,12 +153,7 @@ def boxes(dist: dict, shown: list[str], all_groups: list[str], measure: str) -> 
             {k: g[k] for k in ("group", "q1", "median", "q3", "whisker_low", "whisker_high")}
         )
         points.extend({"group": g["group"], "value": v} for v in g["outlier_points"])
-    colour = {
-        "field": "group",
-        "type": "nominal",
-        "scale": group_colour_scale(all_groups),
-        "legend": None,
-    }
+    colour = _group_colour(all_groups)
     y = _group_axis(shown)
     x_title = {"title": measure, "scale": {"zero": False}}
     return themed(

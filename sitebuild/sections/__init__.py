@@ -18,6 +18,9 @@ from dataclasses import dataclass
 
 SECTION_NAMES = ("summaries", "relationships", "comparisons")
 MAX_CHART_GROUPS = 30  # groups drawn in distribution charts; tables keep every group
+# From this many rows the analysis uses two threads (below it, threads cost more than they
+# save); the heavy work is numpy sorting and searching, which releases the GIL.
+PARALLEL_ROWS = 200_000
 
 
 @dataclass(frozen=True)

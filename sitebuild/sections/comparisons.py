@@ -52,7 +52,7 @@ from ..stats.pairwise import (
     tukey_hsd,
     welch_t,
 )
-from . import DataTable
+from . import PARALLEL_ROWS, DataTable
 
 MAX_PAIRWISE_GROUPS = 30
 MAX_DUNNETT_GROUPS = 30
@@ -63,7 +63,6 @@ PERMUTATION_BUDGET = 50_000_000
 # group it runs on a seeded random sample of this size. The interval stays valid (it is the
 # distribution-free interval of that sample), only wider than one from every value.
 HL_SAMPLE_LIMIT = 5_000
-PARALLEL_ROWS = 200_000  # measures run on two threads from this many rows
 SKEW_LIMIT = 1.0
 SD_RATIO_LIMIT = 2.0
 SIZE_RATIO_LIMIT = 1.5

@@ -57,6 +57,19 @@ def _undefined(method: str, n: int, level: float, reason: str) -> Correlation:
     return Correlation(method, n, None, None, None, None, level, None, reason)
 
 
+def _usable(method: str, x, y, level: float):
+    """Return (x, y, None) on their complete pairs, or (x, y, undefined result) when there are
+    fewer than MIN_PAIRS pairs or a column has no variation."""
+    x, y = _pairwise(x, y)
+    n = int(x.size)
+    if n < MIN_PAIRS:
+        return x, y, _undefined(method, n, level, f"fewer than {MIN_PAIRS} complete pairs")
+    for v, name in ((x, "x"), (y, "y")):
+        if _flat(v):
+            return x, y, _undefined(method, n, level, f"{name} has no variation")
+    return x, y, None
+
+
 def _pairwise(x, y) -> tuple[np.ndarray, np.ndarray]:
     x = np.asarray(x, dtype=np.float64)
     y = np.asarray(y, dtype=np.float64)
@@ -122,13 +135,10 @@ def pearson(x, y, level: float = 0.95) -> Correlation:
     >>> round(pearson([1, 2, 3, 4, 5], [2, 4, 5, 4, 5]).r, 4)
     0.7746
     """
-    x, y = _pairwise(x, y)
+    x, y, undefined = _usable("pearson", x, y, level)
+    if undefined is not None:
+        return undefined
     n = int(x.size)
-    if n < MIN_PAIRS:
-        return _undefined("pearson", n, level, f"fewer than {MIN_PAIRS} complete pairs")
-    for v, name in ((x, "x"), (y, "y")):
-        if _flat(v):
-            return _undefined("pearson", n, level, f"{name} has no variation")
     dx = x - x.mean()
     dy = y - y.mean()
     r = float(np.dot(dx, dy) / np.sqrt(np.dot(dx, dx) * np.dot(dy, dy)))
@@ -202,13 +212,10 @@ def spearman(x, y, level: float = 0.95) -> Correlation:
     >>> round(spearman([1, 2, 3, 4, 5], [2, 4, 5, 4, 5]).r, 4)
     0.7379
     """
-    x, y = _pairwise(x, y)
+    x, y, undefined = _usable("spearman", x, y, level)
+    if undefined is not None:
+        return undefined
     n = int(x.size)
-    if n < MIN_PAIRS:
-        return _undefined("spearman", n, level, f"fewer than {MIN_PAIRS} complete pairs")
-    for v, name in ((x, "x"), (y, "y")):
-        if _flat(v):
-            return _undefined("spearman", n, level, f"{name} has no variation")
     inner = pearson(rank_average(x), rank_average(y))
     r = float(inner.r)
     se = np.sqrt((1.0 + r * r / 2.0) / (n - 3)) if n > 3 else 0.0
@@ -245,13 +252,10 @@ def kendall(
     >>> round(kendall([1, 2, 3, 4, 5], [2, 4, 5, 4, 5]).r, 4)
     0.6708
     """
-    x, y = _pairwise(x, y)
+    x, y, undefined = _usable("kendall", x, y, level)
+    if undefined is not None:
+        return undefined
     n_all = int(x.size)
-    if n_all < MIN_PAIRS:
-        return _undefined("kendall", n_all, level, f"fewer than {MIN_PAIRS} complete pairs")
-    for v, name in ((x, "x"), (y, "y")):
-        if _flat(v):
-            return _undefined("kendall", n_all, level, f"{name} has no variation")
     if n_all > limit:
         if rng is None:
             raise ValueError("kendall() needs rng when the pairs exceed the limit")

@@ -16,6 +16,7 @@ from pathlib import Path
 
 import numpy as np
 
+from ..cache import file_sha256
 from ..errors import SitebuildError
 from ..ingest import (
     MISSING_TOKENS,
@@ -26,7 +27,6 @@ from ..ingest import (
     _decode_head,
     _label_text,
     _to_numbers,
-    file_sha256,
     sniff_delimiter,
 )
 from ..manifest import DatasetSpec
