@@ -181,9 +181,17 @@ def _build(args) -> int:
     return 0
 
 
-def _stop_on_terminate(signum, frame):
-    # A service manager or `kill` sends SIGTERM: unwind like Ctrl-C so the staging folder and
+# The signal that asked this process to stop, if one did. A signal can land while Python is
+# importing a compiled module; the import then fails with its own error (ImportError:
+# initialization failed) instead of KeyboardInterrupt, so the error handlers below consult this
+# record rather than the exception type alone.
+_stop_signal: list[int] = []
+
+
+def _stop(signum, frame):
+    # Ctrl-C (SIGINT) or a service manager / `kill` (SIGTERM): unwind so the staging folder and
     # the lock are removed and the previous site stays as it was.
+    _stop_signal.append(signum)
     raise KeyboardInterrupt
 
 
@@ -191,11 +199,21 @@ def main(argv: list[str] | None = None) -> int:
     """Run the command line; return the exit code."""
     if threading.current_thread() is not threading.main_thread():
         return _main(argv)
-    previous = signal.signal(signal.SIGTERM, _stop_on_terminate)
+    _stop_signal.clear()
+    previous = {sig: signal.signal(sig, _stop) for sig in (signal.SIGINT, signal.SIGTERM)}
     try:
         return _main(argv)
     finally:
-        signal.signal(signal.SIGTERM, previous)
+        for sig, handler in previous.items():
+            signal.signal(sig, handler)
+
+
+def _interrupted(args) -> int:
+    if args.command == "build" and getattr(args, "watch", False):
+        print("Stopped watching.", file=sys.stderr)
+        return 0
+    print("error: interrupted; the previous site is unchanged.", file=sys.stderr)
+    return 128 + (_stop_signal[0] if _stop_signal else signal.SIGINT)
 
 
 def _main(argv: list[str] | None) -> int:
@@ -222,12 +240,10 @@ def _main(argv: list[str] | None) -> int:
         print(f"error: {error}", file=sys.stderr)
         return error.exit_code
     except KeyboardInterrupt:
-        if args.command == "build" and getattr(args, "watch", False):
-            print("Stopped watching.", file=sys.stderr)
-            return 0
-        print("error: interrupted; the previous site is unchanged.", file=sys.stderr)
-        return 130
+        return _interrupted(args)
     except Exception as error:  # noqa: BLE001 - one line for users; --debug shows the rest
+        if _stop_signal:
+            return _interrupted(args)
         if debug:
             raise
         print(

@@ -192,3 +192,27 @@ def test_tables_flag_constant_columns_and_tiny_groups():
                 assert c.r is None
         if table.group == 1:
             assert all(c.r is None and "fewer than 3" in c.reason for _, _, c in table.pairs)
+
+
+@pytest.mark.parametrize("scale", [2.0**1000, 2.0**-1000], ids=["near-max", "near-min"])
+def test_values_near_the_float_limits_give_the_same_correlations(scale):
+    # Products of values ~1e301 overflow and of ~1e-301 underflow; r is scale-free, so the
+    # tables must equal scipy.stats on the same data at ordinary scale (exact power of two).
+    rng = np.random.default_rng(5)
+    n = 200
+    plain = rng.normal(size=(n, 3))
+    plain[:, 1] += plain[:, 0]
+    plain[rng.choice(n, 20, replace=False), 2] = np.nan
+    codes = rng.integers(0, 2, size=n)
+    big = plain * scale
+    assert np.all(np.isfinite(big[~np.isnan(big)]))
+    with np.errstate(all="raise"):
+        tables = correlation_tables(big, codes, 2, methods=("pearson",), rng=None)
+    for table in tables:
+        rows = np.ones(n, bool) if table.group is None else codes == table.group
+        for i, j, c in table.pairs:
+            a, b = _complete(plain[rows, i], plain[rows, j])
+            ref = stats.pearsonr(a, b)  # reference library: scipy.stats
+            assert c.r == pytest.approx(ref.statistic, abs=1e-12), (table.group, i, j)
+    one = pearson(big[:, 0], big[:, 1])
+    assert one.r == pytest.approx(stats.pearsonr(plain[:, 0], plain[:, 1]).statistic, abs=1e-12)

@@ -83,6 +83,19 @@ def _flat(v: np.ndarray) -> bool:
     return bool(v.size) and bool(v.min() == v.max())
 
 
+def _unit_scale(data: np.ndarray) -> np.ndarray:
+    """Divide each column by a power of two so its largest magnitude is below 1.
+
+    Correlations do not change under scaling and a power of two scales exactly, but products
+    of values near the float limits (|v| ~ 1e300, or ~ 1e-300) overflow or underflow; on the
+    unit scale sums of squares stay below the row count. NaN stays NaN.
+    """
+    with np.errstate(invalid="ignore"):
+        peak = np.nanmax(np.abs(data), axis=0, initial=0.0)
+    _, exponent = np.frexp(np.where(np.isfinite(peak) & (peak > 0), peak, 1.0))
+    return np.ldexp(data, -exponent.astype(np.int64))
+
+
 def _t_pvalue(r: np.ndarray, n: np.ndarray) -> np.ndarray:
     """Two-sided p for H0: rho = 0 from t = r sqrt((n-2)/(1-r^2)) on n-2 df."""
     from scipy import special
@@ -139,8 +152,9 @@ def pearson(x, y, level: float = 0.95) -> Correlation:
     if undefined is not None:
         return undefined
     n = int(x.size)
-    dx = x - x.mean()
-    dy = y - y.mean()
+    scaled = _unit_scale(np.column_stack([x, y]))
+    dx = scaled[:, 0] - scaled[:, 0].mean()
+    dy = scaled[:, 1] - scaled[:, 1].mean()
     r = float(np.dot(dx, dy) / np.sqrt(np.dot(dx, dx) * np.dot(dy, dy)))
     p = float(_t_pvalue(np.array(r), np.array(n)))
     se = 1.0 / np.sqrt(n - 3) if n > 3 else 0.0
@@ -307,6 +321,7 @@ def _matrix_r(data: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     if rows == 0:
         zeros = np.zeros((k, k))
         return zeros, zeros.astype(np.int64), zeros.astype(bool)
+    data = _unit_scale(data)
     if present.all():
         # No missing values: every pair uses all rows, one cross-product does it.
         x0 = data - data.mean(axis=0)
