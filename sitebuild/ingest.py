@@ -314,13 +314,28 @@ def read_frame(spec: DatasetSpec):
     _check_columns(spec, header)
     decimal_comma = delimiter == ";"
     positions = [header.index(c) for c in needed]
+    # pandas drops the extra fields of a long row without a word when asked for some columns
+    # only, so such files are scanned for long rows afterwards. When every column is needed it
+    # reads them all and raises on a long row itself, except on the first data row (which it
+    # would take as an index, or trim with index_col=False); that row is checked here.
+    every_column = len(header) == len(set(positions)) == len(set(header))
+    if every_column:
+        extra = _long_first_row(head, len(head_bytes) < 65536, delimiter, len(header))
+        every_column = extra != UNSURE
+        if every_column and extra is not None:
+            raise SitebuildError(
+                f"{spec.file}: a row has more fields than the header at line {extra}; fix that "
+                f"row or quote fields that contain the delimiter (the header has "
+                f"{len(header)} fields)."
+            )
 
     def read(enc: str):
         return pd.read_csv(
             path,
             sep=delimiter,
             encoding=enc,
-            usecols=positions,
+            usecols=None if every_column else positions,
+            index_col=False,
             dtype={spec.group: str},
             na_values=list(MISSING_TOKENS),
             keep_default_na=False,
@@ -340,8 +355,15 @@ def read_frame(spec: DatasetSpec):
             ]
             frame = read(encoding)
     except pd.errors.ParserError as exc:
+        if "EOF inside string" in str(exc):
+            raise SitebuildError(
+                f"{spec.file}: the quoted field opened at line {_unclosed_quote_line(path)} is "
+                'never closed; add the closing " or remove the stray one.'
+            ) from None
+        # pandas counts rows, not lines; a quoted line break moves the physical line.
+        line = first_overlong_line(path, delimiter, len(header))
         match = re.search(r"line (\d+)", str(exc))
-        where = f" at line {match.group(1)}" if match else ""
+        where = f" at line {line}" if line else (f" at row {match.group(1)}" if match else "")
         raise SitebuildError(
             f"{spec.file}: a row has more fields than the header{where}; fix that row or quote "
             "fields that contain the delimiter."
@@ -350,14 +372,49 @@ def read_frame(spec: DatasetSpec):
         raise SitebuildError(
             f"{spec.file}: the file has no columns; export it again with a header row."
         ) from None
-    frame.columns = [header[p] for p in sorted(positions)]
-    extra = first_overlong_line(path, delimiter, len(header))
+    frame.columns = header if every_column else [header[p] for p in sorted(positions)]
+    extra = None if every_column else first_overlong_line(path, delimiter, len(header))
     if extra is not None:
         raise SitebuildError(
             f"{spec.file}: a row has more fields than the header at line {extra}; fix that row "
             f"or quote fields that contain the delimiter (the header has {len(header)} fields)."
         )
     return frame[needed], encoding, delimiter, warnings
+
+
+UNSURE = -1
+
+
+def _long_first_row(head: str, whole: bool, delimiter: str, fields: int) -> int | None:
+    """Return the line where the first data row starts if it has more than ``fields`` fields.
+
+    ``head`` is the decoded start of the file (``whole`` when it is all of it). A row cut off
+    at the end of ``head`` can only show fewer fields than it has, so when the first data row
+    may run past it (no third row started within ``head``) this returns :data:`UNSURE` and
+    the caller falls back to :func:`first_overlong_line`'s full scan.
+    """
+    reader = csv.reader(io.StringIO(head, newline=""), delimiter=delimiter)
+    rows = []
+    starts = []
+    for row in reader:
+        starts.append(reader.line_num)
+        rows.append(row)
+        if len(rows) == 3:
+            break
+    if len(rows) < 2:
+        return None
+    if len(rows) < 3 and not whole:
+        return UNSURE
+    if len(rows[1]) > fields:
+        return starts[0] + 1
+    return None
+
+
+def _unclosed_quote_line(path: Path) -> int:
+    """Return the line of the quote that opens a field never closed (the file's last quote
+    byte, as their count is odd: "" inside a field counts twice)."""
+    data = path.read_bytes()
+    return data.count(b"\n", 0, data.rfind(b'"')) + 1
 
 
 def first_overlong_line(path: Path, delimiter: str, fields: int) -> int | None:

@@ -386,6 +386,73 @@ def test_d04_row_with_too_many_fields(project, capsys):
     assert "line 3" in message
 
 
+def _first_long_row(text: str, fields: int) -> int | None:
+    """Reference: Python's csv module (RFC 4180 quoting); the physical line a long row starts."""
+    import csv
+    import io
+
+    reader = csv.reader(io.StringIO(text, newline=""))
+    start = 1
+    for row in reader:
+        if len(row) > fields:
+            return start
+        start = reader.line_num + 1
+    return None
+
+
+@pytest.mark.parametrize(
+    "text",
+    [
+        pytest.param("g,v,w\nA,1,2,9\nA,2,3\nB,3,4\nB,4,5\n", id="first-data-row"),
+        pytest.param('g,v,w\n"A\nA",1,2\nA,2,3\nB,3,4,4\nB,4,5\n', id="after-quoted-newline"),
+        pytest.param("g,v,w,z\nA,1,2,q\nA,2,3,q\nB,3,4,q,q\nB,4,5,q\n", id="unused-column"),
+        pytest.param("g,v,w,z\nA,1,2,q,q\nA,2,3,q\nB,3,4,q\nB,4,5,q\n", id="unused-first-row"),
+        pytest.param(
+            "g,v,w\n" + "A,1,2\n" * 30_000 + "B,3,4,4\nB,4,5\n", id="beyond-the-sniffed-head"
+        ),
+    ],
+)
+def test_d04_long_rows_are_found_wherever_they_are(project, capsys, text):
+    fields = len(text.split("\n", 1)[0].split(","))
+    line = _first_long_row(text, fields)
+    assert line is not None
+    message = refused(project, capsys, files={"data/d.csv": text})
+    assert message.startswith("data/d.csv: a row has more fields than the header")
+    assert f"line {line}" in message, (line, message)
+
+
+@pytest.mark.parametrize(
+    "text",
+    [
+        pytest.param('g,v,w\n"A,A",1,2\nA,2,3\nB,3,4\nB,4,5\n', id="quoted-delimiter"),
+        pytest.param(
+            'g,v,w\nA,"' + "1,2" * 30_000 + '",2\nA,2,3\nB,3,4\nB,4,5\n', id="huge-first-cell"
+        ),
+    ],
+)
+def test_d04_delimiters_inside_quotes_do_not_count(project, capsys, text):
+    assert _first_long_row(text, 3) is None
+    built = accepted(project, capsys, files={"data/d.csv": text})
+    assert built.ds["source"]["rows_read"] == 4
+    w = [r for r in built.ds["summaries"] if r["measure"] == "w" and r["group"] is None]
+    assert w[0]["n"] == 4
+
+
+@pytest.mark.parametrize(
+    "text, line",
+    [
+        pytest.param('g,v,w\nA,1,2\n"B,3,4\nB,4,5\n', 3, id="all-columns"),
+        pytest.param('g,v,w,z\nA,1,2,"x""y"\nA,2,3,q\nB,3,4,"q\nB,4,5,q\n', 4, id="unused"),
+    ],
+)
+def test_d04_a_quote_never_closed(project, capsys, text, line):
+    message = refused(project, capsys, files={"data/d.csv": text})
+    assert message == (
+        f'data/d.csv: the quoted field opened at line {line} is never closed; add the closing " '
+        "or remove the stray one."
+    )
+
+
 def test_d05_row_with_too_few_fields_counts_missing(project, capsys):
     built = accepted(project, capsys, files={"data/d.csv": "g,v,w\nA,1,2\nA,2\nB,3,4\nB,4,5\n"})
     assert built.ds["source"]["missing"] == {"v": 0, "w": 1}
