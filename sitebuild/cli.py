@@ -9,7 +9,7 @@ import signal
 import sys
 import threading
 
-from . import __version__
+from . import __version__, stopping
 from .errors import SitebuildError
 
 
@@ -181,17 +181,12 @@ def _build(args) -> int:
     return 0
 
 
-# The signal that asked this process to stop, if one did. A signal can land while Python is
-# importing a compiled module; the import then fails with its own error (ImportError:
-# initialization failed) instead of KeyboardInterrupt, so the error handlers below consult this
-# record rather than the exception type alone.
-_stop_signal: list[int] = []
-
-
 def _stop(signum, frame):
     # Ctrl-C (SIGINT) or a service manager / `kill` (SIGTERM): unwind so the staging folder and
-    # the lock are removed and the previous site stays as it was.
-    _stop_signal.append(signum)
+    # the lock are removed and the previous site stays as it was. The request is also recorded
+    # (see sitebuild.stopping): a signal landing inside an import surfaces as ImportError,
+    # which a library may catch.
+    stopping.request(signum)
     raise KeyboardInterrupt
 
 
@@ -199,13 +194,14 @@ def main(argv: list[str] | None = None) -> int:
     """Run the command line; return the exit code."""
     if threading.current_thread() is not threading.main_thread():
         return _main(argv)
-    _stop_signal.clear()
+    stopping.clear()
     previous = {sig: signal.signal(sig, _stop) for sig in (signal.SIGINT, signal.SIGTERM)}
     try:
         return _main(argv)
     finally:
         for sig, handler in previous.items():
             signal.signal(sig, handler)
+        stopping.clear()  # the request belonged to this command
 
 
 def _interrupted(args) -> int:
@@ -213,7 +209,7 @@ def _interrupted(args) -> int:
         print("Stopped watching.", file=sys.stderr)
         return 0
     print("error: interrupted; the previous site is unchanged.", file=sys.stderr)
-    return 128 + (_stop_signal[0] if _stop_signal else signal.SIGINT)
+    return 128 + (stopping.requested() or signal.SIGINT)
 
 
 def _main(argv: list[str] | None) -> int:
@@ -242,7 +238,7 @@ def _main(argv: list[str] | None) -> int:
     except KeyboardInterrupt:
         return _interrupted(args)
     except Exception as error:  # noqa: BLE001 - one line for users; --debug shows the rest
-        if _stop_signal:
+        if stopping.requested():
             return _interrupted(args)
         if debug:
             raise

@@ -18,7 +18,7 @@ from contextlib import contextmanager
 from dataclasses import dataclass, field
 from pathlib import Path
 
-from . import __version__
+from . import __version__, stopping
 from .cache import (
     Cache,
     cache_folder,
@@ -497,6 +497,7 @@ def build(
             if say:
                 say(f"{spec.name}: {table.report.rows_used:,} rows ready")
             ds = clean(analyse(table, manifest, timer, say))
+            stopping.check()  # a stop whose KeyboardInterrupt a library swallowed
             # Through JSON and back, so fresh and cached results are the very same data.
             ds = json.loads(canonical(ds))
             checksums.append(cache.store("results", key, ds))

@@ -36,6 +36,9 @@ class PageVisit:
 
     url: str
     console_errors: list[str] = field(default_factory=list)
+    # Vega-Lite reports encodings and sizes it had to drop as console warnings: the chart
+    # still draws, but not as specified (a muted cell without its outline, say).
+    console_warnings: list[str] = field(default_factory=list)
     page_errors: list[str] = field(default_factory=list)
     blocked: list[str] = field(default_factory=list)
     dialogs: list[str] = field(default_factory=list)
@@ -62,10 +65,14 @@ def visit_pages(browser, urls: list[str], settle_ms: int = 15000) -> list[PageVi
         visit = PageVisit(url=url)
         visits.append(visit)
         page = context.new_page()
-        page.on(
-            "console",
-            lambda m, v=visit: v.console_errors.append(m.text) if m.type == "error" else None,
-        )
+
+        def on_console(message, v=visit):
+            if message.type == "error":
+                v.console_errors.append(message.text)
+            elif message.type == "warning":
+                v.console_warnings.append(message.text)
+
+        page.on("console", on_console)
         page.on("pageerror", lambda e, v=visit: v.page_errors.append(str(e)))
 
         def on_dialog(dialog, v=visit):

@@ -20,6 +20,7 @@ def assert_clean(visits):
         name = v.url.rsplit("/", 1)[-1]
         assert v.page_errors == [], f"{name}: {v.page_errors}"
         assert v.console_errors == [], f"{name}: {v.console_errors}"
+        assert v.console_warnings == [], f"{name}: {v.console_warnings}"
         assert v.blocked == [], f"{name} tried the network: {v.blocked}"
         assert v.dialogs == [], f"{name} opened a dialog: {v.dialogs}"
         assert v.failed_charts == [], f"{name}: {v.failed_charts}"
@@ -105,3 +106,39 @@ def test_single_file_opens_offline_with_every_chart(browser, handover):
     visits = visit_pages(browser, [single.as_uri()], settle_ms=30000)
     assert_clean(visits)
     assert visits[0].charts >= 40
+
+
+DEGENERATE = {
+    "one-group": "g,v,w,x\n" + "".join(f"A,{i % 5},{i * 0.3},{i}\n" for i in range(20)),
+    "one-row-per-group": "g,v,w,x\nA,1,2,1\nB,2,3,2\nC,3,1,3\n",
+    "constant-measure": "g,v,w,x\n" + "".join(f"{'AB'[i % 2]},7,{i},{i}\n" for i in range(20)),
+    "measure-all-missing": "g,v,w,x\n" + "".join(f"{'AB'[i % 2]},,{i},{i}\n" for i in range(20)),
+    "constant-x": "g,v,w,x\n" + "".join(f"{'AB'[i % 2]},{i},{i % 3},5\n" for i in range(20)),
+    "header-only": "g,v,w,x\n",
+    "no-outliers-two-rows": "g,v,w,x\nA,1,2,1\nA,2,3,2\nB,3,4,3\nB,4,4,4\n",
+}
+
+
+@pytest.mark.parametrize("name", sorted(DEGENERATE))
+def test_degenerate_data_draws_without_warnings(browser, tmp_path, name):
+    # Charts with empty layers or constant fields make Vega-Lite warn and drop parts of a
+    # chart; every page must still draw exactly as specified.
+    import sitebuild
+
+    root = write_project(
+        tmp_path / "p",
+        """
+        [site]
+        title = "Edge cases"
+        [[datasets]]
+        name = "Edge"
+        file = "data/d.csv"
+        group = "g"
+        measures = ["v", "w"]
+        x = "x"
+        """,
+        {"data/d.csv": DEGENERATE[name]},
+    )
+    out = tmp_path / "site"
+    sitebuild.build(root, out=out, quiet=True)
+    assert_clean(visit_pages(browser, [p.as_uri() for p in sorted(out.glob("*.html"))]))

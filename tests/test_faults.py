@@ -257,8 +257,8 @@ def test_signal_while_analysing_a_larger_dataset(site, signum):
     )
     (root / "data" / "d.csv").write_text("g,v,w\n" + rows, encoding="utf-8")
     proc = child(root, out)
-    wait_for(proc, "rows ready")
-    time.sleep(0.3)
+    # The summaries come first; the signal lands while the slower sections are running.
+    wait_for(proc, "Lines: summaries (")
     proc.send_signal(signum)
     _, err = proc.communicate(timeout=60)
     assert proc.returncode == 128 + signum
@@ -266,6 +266,30 @@ def test_signal_while_analysing_a_larger_dataset(site, signum):
     assert leftovers(out) == []
     assert "Traceback" not in err
     assert "interrupted; the previous site is unchanged" in err
+
+
+@pytest.mark.parametrize("signum", [signal.SIGINT, signal.SIGTERM], ids=["SIGINT", "SIGTERM"])
+def test_a_stop_swallowed_by_a_library_still_stops_the_build(site, capsys, monkeypatch, signum):
+    # A library's "try: import x / except ImportError: fall back" can eat the interruption
+    # when the signal lands inside that import; the build must still stop before publishing.
+    root, out, before = site
+    from sitebuild import pipeline
+
+    real_analyse = pipeline.analyse
+
+    def analyse_and_swallow(*args, **kwargs):
+        try:
+            os.kill(os.getpid(), signum)
+        except (KeyboardInterrupt, ImportError):
+            pass  # what the library does
+        return real_analyse(*args, **kwargs)
+
+    monkeypatch.setattr(pipeline, "analyse", analyse_and_swallow)
+    code, line = failed_build(root, out, capsys)
+    assert code == 128 + signum
+    assert line == "error: interrupted; the previous site is unchanged."
+    assert snapshot(out) == before
+    assert leftovers(out) == []
 
 
 @pytest.mark.parametrize("signum", [signal.SIGINT, signal.SIGTERM], ids=["SIGINT", "SIGTERM"])

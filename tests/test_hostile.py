@@ -184,7 +184,7 @@ def test_hostile_text_never_runs_or_alters_the_page(browser, tmp_path):
     # Console errors, network attempts, dialogs and undrawn charts, as the example site checks.
     visits = visit_pages(browser, [p.as_uri() for p in bad_pages.values()])
     for v in visits:
-        assert v.page_errors == [] and v.console_errors == [], v
+        assert v.page_errors == [] and v.console_errors == [] and v.console_warnings == [], v
         assert v.blocked == [] and v.dialogs == [], v
         assert v.failed_charts == [] and v.drawn >= v.charts, v
 
@@ -219,5 +219,5 @@ def test_awkward_column_names_draw_every_chart(browser, tmp_path):
     dataset = [v for v in visits if v.url.endswith("awkward.html")]
     assert dataset and dataset[0].charts >= 3 * len(AWKWARD)
     for v in visits:
-        assert v.page_errors == [] and v.console_errors == [], v
+        assert v.page_errors == [] and v.console_errors == [] and v.console_warnings == [], v
         assert v.failed_charts == [] and v.drawn >= v.charts, v

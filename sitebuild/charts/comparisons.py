@@ -17,6 +17,12 @@ STATUS_COLOURS = {
     "inconclusive": PALETTE[1],  # orange
     "no clear difference": MUTED,
 }
+STATUS_SHAPES = {
+    "differs": "diamond",
+    "equivalent": "square",
+    "inconclusive": "triangle-up",
+    "no clear difference": "circle",
+}
 # Adjusted p bands, strongest evidence darkest; our own sequential blues from the palette.
 P_BANDS = ("p < 0.001", "p < 0.01", "p < alpha", "not significant")
 P_COLOURS = ("#0b4f7c", "#2f7fb8", "#8fc0e3", "#f1f1ee")
@@ -88,11 +94,22 @@ def forest_chart(entry: dict, mi: int) -> Chart | None:
     )
     layers.append(
         {
-            "mark": {"type": "point", "filled": True, "size": 60, "shape": "diamond"},
+            "mark": {"type": "point", "filled": True, "size": 70},
             "encoding": {
                 "y": y,
                 "x": {"field": "x", "type": "quantitative"},
                 "color": colour,
+                # Shape repeats the verdict so it does not rest on colour alone (print, and
+                # readers who do not tell vermillion from orange).
+                "shape": {
+                    "field": "status",
+                    "type": "nominal",
+                    "title": "Verdict",
+                    "scale": {
+                        "domain": list(STATUS_SHAPES),
+                        "range": list(STATUS_SHAPES.values()),
+                    },
+                },
                 "tooltip": [
                     {"field": "label", "type": "nominal", "title": "Pair"},
                     {"field": "x", "type": "quantitative", "title": "Estimate", "format": ".3g"},

@@ -51,8 +51,8 @@ def correlation_heatmap(cells: list[dict], columns: list[str], alpha: float) -> 
         "layer": [
             {"mark": {"type": "rect", "fill": NULL_FILL}},
             {
-                "transform": [{"filter": "isValid(datum.value)"}],
-                "mark": {"type": "rect", "strokeWidth": 1},
+                "data": {"values": [v for v in values if v["value"] is not None]},
+                "mark": {"type": "rect"},
                 "encoding": {
                     "color": {
                         "field": "value",
@@ -61,31 +61,39 @@ def correlation_heatmap(cells: list[dict], columns: list[str], alpha: float) -> 
                         "scale": {"domain": [-1, 1], "range": list(DIVERGING)},
                     },
                     "opacity": {"condition": {"test": "datum.sig", "value": 1}, "value": 0.3},
-                    "stroke": {"condition": {"test": "datum.sig", "value": None}, "value": MUTED},
-                    "strokeDash": {
-                        "condition": {"test": "datum.sig", "value": [1, 0]},
-                        "value": [3, 2],
+                    "tooltip": tooltip,
+                },
+            },
+            # Not significant after adjustment: a dashed outline over the faded cell, so the
+            # difference survives greyscale printing. strokeDash is a mark property for rects
+            # (not an encoding channel), hence a layer of its own.
+            {
+                "data": {"values": [v for v in values if v["value"] is not None and not v["sig"]]},
+                "mark": {
+                    "type": "rect",
+                    "fillOpacity": 0,
+                    "stroke": MUTED,
+                    "strokeWidth": 1,
+                    "strokeDash": [3, 2],
+                },
+                "encoding": {"tooltip": tooltip},
+            },
+            {
+                "data": {"values": [v for v in values if v["sig"]]},
+                "mark": {"type": "text", "fontSize": 11},
+                "encoding": {
+                    "text": {"field": "label", "type": "nominal"},
+                    "color": {
+                        "condition": {"test": "abs(datum.value) > 0.6", "value": "#ffffff"},
+                        "value": INK,
                     },
                     "tooltip": tooltip,
                 },
             },
             {
-                "mark": {"type": "text", "fontSize": 11},
-                "encoding": {
-                    "text": {"field": "label", "type": "nominal"},
-                    "color": {
-                        "condition": [
-                            {"test": "!datum.sig", "value": MUTED},
-                            {"test": "abs(datum.value) > 0.6", "value": "#ffffff"},
-                        ],
-                        "value": INK,
-                    },
-                    "fontStyle": {
-                        "condition": {"test": "datum.sig", "value": "normal"},
-                        "value": "italic",
-                    },
-                    "tooltip": tooltip,
-                },
+                "data": {"values": [v for v in values if not v["sig"]]},
+                "mark": {"type": "text", "fontSize": 11, "fontStyle": "italic", "color": MUTED},
+                "encoding": {"text": {"field": "label", "type": "nominal"}, "tooltip": tooltip},
             },
         ],
     }

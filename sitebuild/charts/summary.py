@@ -47,7 +47,9 @@ def mean_intervals(rows: list[dict], all_groups: list[str], measure: str) -> dic
     return themed(
         {
             "data": {"values": values},
-            "height": {"step": ROW_HEIGHT},
+            # A fixed height of one row per group (a "step" height would make Vega-Lite drop
+            # the fit to the container's width with a warning).
+            "height": ROW_HEIGHT * max(1, len(shown)),
             "width": "container",
             "encoding": {"y": y},
             "layer": [
@@ -84,6 +86,9 @@ def mean_intervals(rows: list[dict], all_groups: list[str], measure: str) -> dic
     )
 
 
+HIST_WIDTH = 640  # px of each histogram panel before the page scales it to its box
+
+
 def histograms(dist: dict, shown: list[str], all_groups: list[str], measure: str) -> dict:
     """Return small-multiple histograms on shared bins, one row per group, as shares."""
     edges = dist["edges"]
@@ -106,7 +111,8 @@ def histograms(dist: dict, shown: list[str], all_groups: list[str], measure: str
         {
             "data": {"values": values},
             "mark": {"type": "rect", "stroke": "#ffffff", "strokeWidth": 0.5},
-            "width": "container",
+            # A faceted view cannot take the container's width; the page scales the drawing.
+            "width": HIST_WIDTH,
             "height": 60,
             "encoding": {
                 "x": {
@@ -156,9 +162,23 @@ def boxes(dist: dict, shown: list[str], all_groups: list[str], measure: str) -> 
     colour = _group_colour(all_groups)
     y = _group_axis(shown)
     x_title = {"title": measure, "scale": {"zero": False}}
+    outliers = {
+        "data": {"values": points},
+        "mark": {"type": "point", "size": 18, "opacity": 0.7, "filled": False},
+        "encoding": {
+            "x": {"field": "value", "type": "quantitative"},
+            "color": colour,
+            "tooltip": [
+                {"field": "group", "title": "Group"},
+                {"field": "value", "title": "Value", "format": ".4~g"},
+            ],
+        },
+    }
     return themed(
         {
-            "height": {"step": ROW_HEIGHT},
+            # A fixed height of one row per group (a "step" height would make Vega-Lite drop
+            # the fit to the container's width with a warning).
+            "height": ROW_HEIGHT * max(1, len(shown)),
             "width": "container",
             "encoding": {"y": y},
             "layer": [
@@ -190,18 +210,7 @@ def boxes(dist: dict, shown: list[str], all_groups: list[str], measure: str) -> 
                     "mark": {"type": "tick", "color": INK, "size": 16, "thickness": 2},
                     "encoding": {"x": {"field": "median", "type": "quantitative"}},
                 },
-                {
-                    "data": {"values": points},
-                    "mark": {"type": "point", "size": 18, "opacity": 0.7, "filled": False},
-                    "encoding": {
-                        "x": {"field": "value", "type": "quantitative"},
-                        "color": colour,
-                        "tooltip": [
-                            {"field": "group", "title": "Group"},
-                            {"field": "value", "title": "Value", "format": ".4~g"},
-                        ],
-                    },
-                },
-            ],
+            ]
+            + ([outliers] if points else []),  # an empty layer has an infinite extent
         }
     )

@@ -111,9 +111,72 @@ def _compact_data(node):
             _compact_data(item)
 
 
+# Channels whose quantitative field sets a scale's extent: with no finite value there, Vega
+# warns of an infinite extent and the chart's axes come out wrong.
+EXTENT_CHANNELS = ("x", "x2", "y", "y2", "color", "size", "opacity")
+
+
+def _values(node: dict, inherited, named: dict):
+    data = node.get("data")
+    if isinstance(data, dict) and "values" in data:
+        return data["values"]
+    if isinstance(data, dict) and "name" in data:
+        return named.get(data["name"])
+    return inherited
+
+
+def _layer_drawable(node: dict, values, encoding: dict) -> bool:
+    """False when a single view's inline data give no finite value for a scaled field."""
+    if not isinstance(values, list):
+        return True  # named or external data: not ours to judge
+    if not values:
+        return False
+    for channel in EXTENT_CHANNELS:
+        enc = encoding.get(channel)
+        if not isinstance(enc, dict) or enc.get("type") != "quantitative" or "field" not in enc:
+            continue
+        field = enc["field"]
+        if not any(
+            isinstance(r.get(field), int | float)
+            and not isinstance(r.get(field), bool)
+            and math.isfinite(r[field])
+            for r in values
+        ):
+            return False
+    return True
+
+
+def _prune(node: dict, inherited=None, encoding: dict | None = None, named=None) -> bool:
+    """Drop layers with nothing to draw (see :func:`_layer_drawable`); return whether ``node``
+    still draws anything. Filters are not evaluated: charts split their data per layer."""
+    named = node.get("datasets", {}) if named is None else named
+    values = _values(node, inherited, named)
+    merged = {**(encoding or {}), **node.get("encoding", {})}
+    if "layer" in node:
+        node["layer"] = [
+            layer for layer in node["layer"] if _prune(layer, values, merged, named)
+        ]
+        return bool(node["layer"])
+    if "mark" in node:
+        return _layer_drawable(node, values, merged)
+    return True  # facets and concatenations: drawn as given
+
+
+def drawable(spec: dict) -> bool:
+    """Return whether a themed spec draws anything (its layers were pruned by :func:`themed`)."""
+    return bool(spec) and spec.get("usermeta", {}).get("drawable", True)
+
+
 def themed(spec: dict) -> dict:
-    """Return ``spec`` with our config, inline data rounded to chart precision; input unchanged."""
+    """Return ``spec`` with our config, inline data rounded to chart precision; input unchanged.
+
+    Layers with no finite value for a scaled field are dropped (Vega would warn of an infinite
+    extent); when nothing is left, ``usermeta.drawable`` is False and the page says so
+    instead of drawing empty axes.
+    """
     out = copy.deepcopy(spec)
+    if not _prune(out):
+        out["usermeta"] = {**out.get("usermeta", {}), "drawable": False}
     _compact_data(out)
     # No schema URL: pages must not name any web address; the embed is told the mode instead.
     out.pop("$schema", None)

@@ -33,6 +33,13 @@ class Chart:
     spec: dict  # Vega-Lite spec, JSON-ready; data inline under fixed, safe field names
     table: str | None = None  # id of the DataTable on the same page that holds its numbers
 
+    @property
+    def drawable(self) -> bool:
+        """False when the data leave nothing to draw; the page then says so in words."""
+        from ..charts.theme import drawable
+
+        return drawable(self.spec)
+
 
 @dataclass(frozen=True)
 class DataTable:

@@ -13,6 +13,7 @@ from dataclasses import dataclass, field
 from pathlib import Path
 
 from ..cache import CACHE_DIR
+from .. import stopping
 from ..errors import BuildLocked, SitebuildError
 from ..manifest import Manifest
 from .render import MARKER
@@ -232,6 +233,8 @@ def publish(files: dict[str, bytes], out: Path, manifest: Manifest, lock: bool =
                     f"{out}: writing the new site failed ({exc.strerror}); the previous site is "
                     "unchanged — free space or fix permissions and build again."
                 ) from None
+            # Last moment to honour a stop whose KeyboardInterrupt a library swallowed.
+            stopping.check()
             try:
                 if out.exists():
                     aside = out.parent / f".{out.name}.old-{os.getpid()}"

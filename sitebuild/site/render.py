@@ -199,7 +199,7 @@ def dataset_page(env, common: dict, ds: dict, spec) -> tuple[dict, dict]:
         "charts": charts,
         "tables": tables,
         "notes_html": notes_html,
-        "chart_specs": {cid: c.spec for cid, c in charts.items()},
+        "chart_specs": {cid: c.spec for cid, c in charts.items() if c.drawable},
         "current": f"{ds['slug']}.html",
     }
     return context, csv_files
