@@ -54,7 +54,8 @@ def forest_chart(entry: dict, mi: int) -> Chart | None:
         "title": None,
         "axis": {"labelLimit": 220},
     }
-    x_title = f"{est_name} (first minus second), with {entry.get('confidence', 0.95):.0%} interval"
+    # Short enough for a half-width chart; the interval level is in the description.
+    x_title = f"{est_name} (first minus second)"
     layers: list[dict] = []
     margin = entry.get("margin")
     if margin:
@@ -80,6 +81,7 @@ def forest_chart(entry: dict, mi: int) -> Chart | None:
         "type": "nominal",
         "title": "Verdict",
         "scale": {"domain": list(STATUS_COLOURS), "range": list(STATUS_COLOURS.values())},
+        "legend": {"columns": 2},
     }
     layers.append(
         {
@@ -109,6 +111,7 @@ def forest_chart(entry: dict, mi: int) -> Chart | None:
                         "domain": list(STATUS_SHAPES),
                         "range": list(STATUS_SHAPES.values()),
                     },
+                    "legend": {"columns": 2},
                 },
                 "tooltip": [
                     {"field": "label", "type": "nominal", "title": "Pair"},
@@ -128,6 +131,13 @@ def forest_chart(entry: dict, mi: int) -> Chart | None:
     }
     shown = "" if len(ranked) == len(pairs) else f" (the {len(ranked)} largest of {len(pairs)})"
     band = f"; the shaded band is the equivalence margin ±{margin:g}" if margin else ""
+    family = entry.get("family") or {}
+    if (family.get("size") or 0) > 1 and family.get("adjust") not in (None, "none"):
+        band += (
+            ". Each interval is for its pair alone, while the verdicts use p-values adjusted "
+            f"across the {family['size']} comparisons, so an interval that only just clears zero "
+            "can still read 'no clear difference'"
+        )
     return Chart(
         id=f"cmp-{mi}-forest",
         title=f"Pairwise differences in {entry['measure']}",
