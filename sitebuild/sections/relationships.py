@@ -408,6 +408,7 @@ def compute(table, settings, rng: np.random.Generator, partial: dict | None = No
             if rows.size < total:
                 sampled = f"checked on a random sample of {rows.size:,} of {total:,} rows"
                 rel["note"] = f"{rel['note']} ({sampled})" if rel["note"] else sampled
+                rel["sample"] = sampled
             relationships.append(rel)
     return {
         "correlations": correlations,
@@ -545,10 +546,16 @@ def tables(dataset: dict, settings) -> list[DataTable]:
                     ("note", "Note"),
                 ),
                 rows=tuple(
-                    r | {"group": "all rows" if r["group"] is None else r["group"]}
+                    r
+                    | {
+                        "group": "all rows" if r["group"] is None else r["group"],
+                        # A curve's sentence is printed above the table; repeating it in
+                        # every row made the table several screens tall.
+                        "note": r.get("sample", "") if r["curved"] else r["note"],
+                    }
                     for r in dataset["relationships"]
                 ),
-                caption="The rule: " + info["curve_rule"] + ".",
+                caption="The rule: " + info["curve_rule"] + ". Each curve is described above.",
             )
         )
     if dataset["linear_fits"]:
