@@ -216,3 +216,22 @@ def test_values_near_the_float_limits_give_the_same_correlations(scale):
             assert c.r == pytest.approx(ref.statistic, abs=1e-12), (table.group, i, j)
     one = pearson(big[:, 0], big[:, 1])
     assert one.r == pytest.approx(stats.pearsonr(plain[:, 0], plain[:, 1]).statistic, abs=1e-12)
+
+
+def test_kendall_above_the_limit_uses_one_row_sample_for_every_pair():
+    # With no missing values every pair shares its rows, so one seeded sample of rows serves
+    # all pairs; each tau must equal scipy.stats.kendalltau on exactly those rows.
+    rng = np.random.default_rng(8)
+    rows, limit = 3_000, 500
+    data = rng.normal(size=(rows, 3))
+    data[:, 1] += 0.5 * data[:, 0]
+    data[:, 2] = np.round(data[:, 2], 1)  # ties
+    (table,) = correlation_tables(
+        data, methods=("kendall",), rng=np.random.default_rng(3), kendall_limit=limit
+    )
+    pick = np.sort(np.random.default_rng(3).choice(rows, size=limit, replace=False))
+    for i, j, c in table.pairs:
+        ref = stats.kendalltau(data[pick, i], data[pick, j], variant="b")  # scipy.stats
+        assert c.n == limit and c.n_available == rows
+        assert c.r == pytest.approx(ref.statistic, abs=1e-12)
+        assert c.p == pytest.approx(ref.pvalue, rel=1e-9)

@@ -13,7 +13,7 @@ from __future__ import annotations
 
 import math
 import warnings
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 
 import numpy as np
 
@@ -83,6 +83,9 @@ def _flat(v: np.ndarray) -> bool:
     return bool(v.size) and bool(v.min() == v.max())
 
 
+SAFE_EXPONENT = 400  # |v| within 2^±400: squares and their sums neither overflow nor vanish
+
+
 def _unit_scale(data: np.ndarray) -> np.ndarray:
     """Divide each column by a power of two so its largest magnitude is below 1.
 
@@ -91,8 +94,12 @@ def _unit_scale(data: np.ndarray) -> np.ndarray:
     unit scale sums of squares stay below the row count. NaN stays NaN.
     """
     with np.errstate(invalid="ignore"):
-        peak = np.nanmax(np.abs(data), axis=0, initial=0.0)
+        peak = np.maximum(
+            np.nanmax(data, axis=0, initial=-np.inf), -np.nanmin(data, axis=0, initial=np.inf)
+        )
     _, exponent = np.frexp(np.where(np.isfinite(peak) & (peak > 0), peak, 1.0))
+    if np.all(np.abs(exponent) <= SAFE_EXPONENT):
+        return data  # sums of squares of n such values stay far inside the double range
     return np.ldexp(data, -exponent.astype(np.int64))
 
 
@@ -330,7 +337,8 @@ def _matrix_r(data: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
         var = squares.copy()
         with np.errstate(invalid="ignore", divide="ignore"):
             r = cross / np.sqrt(var * var.T)
-        flat = var <= FLAT_TOLERANCE * np.maximum(squares, np.abs(data).max(axis=0)[:, None] ** 2)
+        peak = np.maximum(data.max(axis=0), -data.min(axis=0))
+        flat = var <= FLAT_TOLERANCE * np.maximum(squares, peak[:, None] ** 2)
         n = np.full((k, k), rows, dtype=np.int64)
         return np.clip(np.nan_to_num(r), -1.0, 1.0), n, flat
     mask = present.astype(np.float64)
@@ -363,6 +371,25 @@ def _scope_table(
     k = data.shape[1]
     pairs: list[tuple[int, int, Correlation]] = []
     if method == "kendall":
+        rows = data.shape[0]
+        if rows > kendall_limit and not np.isnan(data).any():
+            # Every pair has the same complete rows, so one seeded sample of rows serves all
+            # pairs (instead of filtering and sampling a million rows once per pair).
+            pick = np.sort(rng.choice(rows, size=kendall_limit, replace=False))
+            sample = data[pick]
+            for i in range(k):
+                for j in range(i + 1, k):
+                    if _flat(data[:, i]) or _flat(data[:, j]):
+                        result = kendall(data[:, i], data[:, j], level, kendall_limit, rng)
+                    else:
+                        result = kendall(sample[:, i], sample[:, j], level, kendall_limit, rng)
+                        if result.r is None:
+                            result = _undefined(
+                                "kendall", kendall_limit, level, "the random sample has no variation"
+                            )
+                        result = replace(result, n_available=rows)
+                    pairs.append((i, j, result))
+            return CorrelationTable(method, group, tuple(pairs))
         for i in range(k):
             for j in range(i + 1, k):
                 result = kendall(data[:, i], data[:, j], level, kendall_limit, rng)
@@ -455,9 +482,10 @@ def correlation_tables(
         data = data[row_order]
         bounds = np.searchsorted(key, np.arange(n_groups + 1))
     data = np.asfortranarray(data)
-    ranks_all = np.full((n, k), np.nan, order="F")
-    ranks_group = np.full((n, k), np.nan, order="F") if grouped else ranks_all
+    ranks_all = ranks_group = None  # only Spearman uses ranks
     if "spearman" in methods:
+        ranks_all = np.full((n, k), np.nan, order="F")
+        ranks_group = np.full((n, k), np.nan, order="F") if grouped else ranks_all
         for j in range(k):
             column = data[:, j]
             rows = np.flatnonzero(~np.isnan(column))
@@ -474,7 +502,6 @@ def correlation_tables(
         for g in range(n_groups):
             part = slice(bounds[g], bounds[g + 1])
             for m in methods:
-                out.append(
-                    _scope_table(data[part], ranks_group[part], m, level, g, rng, kendall_limit)
-                )
+                ranks = None if ranks_group is None else ranks_group[part]
+                out.append(_scope_table(data[part], ranks, m, level, g, rng, kendall_limit))
     return out
