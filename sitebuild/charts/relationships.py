@@ -51,7 +51,7 @@ def correlation_heatmap(cells: list[dict], columns: list[str], alpha: float) -> 
         "layer": [
             {"mark": {"type": "rect", "fill": NULL_FILL}},
             {
-                "data": {"values": [v for v in values if v["value"] is not None]},
+                "transform": [{"filter": "isValid(datum.value)"}],
                 "mark": {"type": "rect"},
                 "encoding": {
                     "color": {
@@ -68,7 +68,7 @@ def correlation_heatmap(cells: list[dict], columns: list[str], alpha: float) -> 
             # difference survives greyscale printing. strokeDash is a mark property for rects
             # (not an encoding channel), hence a layer of its own.
             {
-                "data": {"values": [v for v in values if v["value"] is not None and not v["sig"]]},
+                "transform": [{"filter": "isValid(datum.value) && !datum.sig"}],
                 "mark": {
                     "type": "rect",
                     "fillOpacity": 0,
@@ -79,7 +79,7 @@ def correlation_heatmap(cells: list[dict], columns: list[str], alpha: float) -> 
                 "encoding": {"tooltip": tooltip},
             },
             {
-                "data": {"values": [v for v in values if v["sig"]]},
+                "transform": [{"filter": "datum.sig"}],
                 "mark": {"type": "text", "fontSize": 11},
                 "encoding": {
                     "text": {"field": "label", "type": "nominal"},
@@ -91,12 +91,23 @@ def correlation_heatmap(cells: list[dict], columns: list[str], alpha: float) -> 
                 },
             },
             {
-                "data": {"values": [v for v in values if not v["sig"]]},
+                "transform": [{"filter": "!datum.sig"}],
                 "mark": {"type": "text", "fontSize": 11, "fontStyle": "italic", "color": MUTED},
                 "encoding": {"text": {"field": "label", "type": "nominal"}, "tooltip": tooltip},
             },
         ],
     }
+    # The layers filter the one copy of the cells (no duplicated data); a layer whose filter
+    # would leave nothing is left out here, as an empty layer makes Vega warn.
+    valid = [v for v in values if v["value"] is not None]
+    keep = [
+        True,
+        bool(valid),
+        any(not v["sig"] for v in valid),
+        any(v["sig"] for v in values),
+        any(not v["sig"] for v in values),
+    ]
+    spec["layer"] = [layer for layer, kept in zip(spec["layer"], keep, strict=True) if kept]
     return themed(spec)
 
 

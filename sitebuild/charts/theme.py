@@ -148,7 +148,7 @@ def _layer_drawable(node: dict, values, encoding: dict) -> bool:
 
 def _prune(node: dict, inherited=None, encoding: dict | None = None, named=None) -> bool:
     """Drop layers with nothing to draw (see :func:`_layer_drawable`); return whether ``node``
-    still draws anything. Filters are not evaluated: charts split their data per layer."""
+    still draws anything. Filters are not evaluated: a chart leaves out a layer its filter would empty."""
     named = node.get("datasets", {}) if named is None else named
     values = _values(node, inherited, named)
     merged = {**(encoding or {}), **node.get("encoding", {})}

@@ -455,7 +455,7 @@ def charts(dataset: dict, settings) -> list[Chart]:
                 title="Pearson correlations, " + where,
                 description=(
                     f"Heatmap of Pearson correlations between every pair of columns for {where};"
-                    " each cell prints r, faded cells are not significant after adjustment."
+                    " each cell prints r, faded, dashed cells with italic values are not significant after adjustment."
                 ),
                 spec=correlation_heatmap(cells, info["columns"], settings.alpha),
                 table=f"rel-corr-{suffix}",

@@ -488,13 +488,15 @@ def correlation_tables(
         ranks_group = np.full((n, k), np.nan, order="F") if grouped else ranks_all
         for j in range(k):
             column = data[:, j]
-            rows = np.flatnonzero(~np.isnan(column))
-            values = column[rows]
+            missing = np.isnan(column)
+            whole = not missing.any()  # then skip the gathers and scatters by row number
+            rows = slice(None) if whole else np.flatnonzero(~missing)
+            values = column if whole else column[rows]
             order = np.argsort(values)
             ranks_all[rows, j] = _ranks_from_order(values, order)
             if grouped:
                 # Within-group order from the overall one by a stable sort on the codes.
-                part = key[rows]
+                part = key if whole else key[rows]
                 by_group = order[np.argsort(part[order], kind="stable")]
                 ranks_group[rows, j] = _ranks_from_order(values, by_group, part)
     out = [_scope_table(data, ranks_all, m, level, None, rng, kendall_limit) for m in methods]
