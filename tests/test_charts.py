@@ -19,7 +19,10 @@ def layered(points, band):
             {
                 "data": {"values": band},
                 "mark": "rule",
-                "encoding": {"x": {"field": "low", "type": "quantitative"}, "x2": {"field": "high"}},
+                "encoding": {
+                    "x": {"field": "low", "type": "quantitative"},
+                    "x2": {"field": "high"},
+                },
             },
         ],
     }

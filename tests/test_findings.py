@@ -96,3 +96,60 @@ def test_p_values_are_written_plainly():
     assert format_p(0.0004) == "< 0.001"
     assert format_p(0.0312) == "0.0312"
     assert format_p(None) == "not available"
+
+
+def _with_sd(entry, sd):
+    for g in entry["groups"]:
+        g["sd"] = sd
+    return entry
+
+
+def test_values_with_a_large_offset_keep_their_digits():
+    # Values near 10,000,000 with SD 0.1: three significant digits of the spread, never 1e+07.
+    entry = _with_sd(_entry([_pair("A", "B", estimate=-0.3412, ci_low=-0.39, ci_high=-0.29)]), 0.1)
+    for g, mean in zip(
+        entry["groups"], (10_000_000.4641, 10_000_000.1229, 10_000_000.3), strict=True
+    ):
+        g["mean"] = mean
+    text = " ".join(measure_findings(entry, SiteSettings()))
+    assert "'A' (10,000,000.464), 'C' (10,000,000.300), 'B' (10,000,000.123)" in text
+    assert "by 0.341 on average (95% CI 0.290 to 0.390)" in text
+    assert "e+0" not in text
+
+
+def test_equivalent_alone_but_not_after_adjustment_says_so():
+    pair = _pair("A", "B", significant=False, conclusion="inconclusive", margin=2.0,
+                 equivalent=False, p_adjusted=0.6, tost_p=0.006, tost_p_adjusted=0.06)  # fmt: skip
+    text = " ".join(measure_findings(_entry([pair]), SiteSettings()))
+    assert "on its own this pair is equivalent within ±2 (p = 0.006)" in text
+    assert "not after allowing for the 3 comparisons (adjusted p = 0.06)" in text
+    assert "too much spread" not in text
+
+
+def test_no_clear_difference_gives_the_range_of_detectable_sizes():
+    pairs = [
+        _pair("A", "B", significant=False, conclusion="no clear difference", p_adjusted=0.5,
+              detectable_difference=9.43),
+        _pair("A", "C", significant=False, conclusion="no clear difference", p_adjusted=0.5,
+              detectable_difference=13.8),
+    ]  # fmt: skip
+    text = " ".join(measure_findings(_entry(pairs), SiteSettings()))
+    assert "about 9.43 to 13.8 or more (depending on the pair)" in text
+
+
+def test_equal_spread_tests_are_not_a_check_when_spreads_differ():
+    entry = _entry([_pair("A", "B", disagree=["tukey_p"])], (0.0001, 0.24, 0.3))
+    for o in entry["omnibus"]:
+        o["p"] = {"one-way ANOVA": 0.0001, "Welch's ANOVA": 0.24, "Kruskal–Wallis": 0.3}[o["test"]]
+    entry["lead_reason"] = (
+        "Welch's ANOVA leads because the largest standard deviation is 10.8 times the smallest"
+    )
+    text = " ".join(measure_findings(entry, SiteSettings()))
+    assert "does not agree" not in text and "borderline" not in text
+    assert "assumes equal spread, which these groups do not have" in text
+    # Unbalanced sizes alone: the one-way ANOVA stays a fair check.
+    entry["lead_reason"] = (
+        "Welch's ANOVA leads because group sizes are unbalanced (5 to 500 values)"
+    )
+    text = " ".join(measure_findings(entry, SiteSettings()))
+    assert "does not agree" in text and "borderline" in text

@@ -21,6 +21,15 @@ def _group_axis(groups: list[str]) -> dict:
     return {"field": "group", "type": "nominal", "sort": list(groups), "title": None}
 
 
+def value_format(rows: list[dict]) -> str:
+    """Return the d3 format for a measure's values in tooltips: the measure's fixed decimals
+    (see :func:`sitebuild.stats.findings.measure_decimals`), else 4 significant digits."""
+    from ..stats.findings import measure_decimals
+
+    decimals = measure_decimals({"groups": rows})
+    return ".4~g" if decimals is None else f",.{decimals}f"
+
+
 def mean_intervals(rows: list[dict], all_groups: list[str], measure: str) -> dict:
     """Return a dot-and-interval chart: each group's mean with its confidence interval."""
     values = [
@@ -39,9 +48,9 @@ def mean_intervals(rows: list[dict], all_groups: list[str], measure: str) -> dic
     y = _group_axis(shown)
     tooltip = [
         {"field": "group", "title": "Group"},
-        {"field": "mean", "title": "Mean", "format": ".4~g"},
-        {"field": "low", "title": "CI low", "format": ".4~g"},
-        {"field": "high", "title": "CI high", "format": ".4~g"},
+        {"field": "mean", "title": "Mean", "format": value_format(rows)},
+        {"field": "low", "title": "CI low", "format": value_format(rows)},
+        {"field": "high", "title": "CI high", "format": value_format(rows)},
         {"field": "n", "title": "n"},
     ]
     return themed(
@@ -86,10 +95,14 @@ def mean_intervals(rows: list[dict], all_groups: list[str], measure: str) -> dic
     )
 
 
-HIST_WIDTH = 800  # px per histogram panel (faceted views cannot fill the box); narrow screens scroll
+HIST_WIDTH = (
+    800  # px per histogram panel (faceted views cannot fill the box); narrow screens scroll
+)
 
 
-def histograms(dist: dict, shown: list[str], all_groups: list[str], measure: str) -> dict:
+def histograms(
+    dist: dict, shown: list[str], all_groups: list[str], measure: str, fmt: str = ".4~g"
+) -> dict:
     """Return small-multiple histograms on shared bins, one row per group, as shares."""
     edges = dist["edges"]
     values = []
@@ -138,8 +151,8 @@ def histograms(dist: dict, shown: list[str], all_groups: list[str], measure: str
                 "color": _group_colour(all_groups),
                 "tooltip": [
                     {"field": "group", "title": "Group"},
-                    {"field": "start", "title": "From", "format": ".4~g"},
-                    {"field": "end", "title": "To", "format": ".4~g"},
+                    {"field": "start", "title": "From", "format": fmt},
+                    {"field": "end", "title": "To", "format": fmt},
                     {"field": "count", "title": "Count"},
                     {"field": "share", "title": "Share", "format": ".1%"},
                 ],
@@ -149,7 +162,9 @@ def histograms(dist: dict, shown: list[str], all_groups: list[str], measure: str
     )
 
 
-def boxes(dist: dict, shown: list[str], all_groups: list[str], measure: str) -> dict:
+def boxes(
+    dist: dict, shown: list[str], all_groups: list[str], measure: str, fmt: str = ".4~g"
+) -> dict:
     """Return horizontal box views from precomputed quartiles, whiskers and outlier points."""
     boxes_data, points = [], []
     for g in dist["groups"]:
@@ -170,7 +185,7 @@ def boxes(dist: dict, shown: list[str], all_groups: list[str], measure: str) -> 
             "color": colour,
             "tooltip": [
                 {"field": "group", "title": "Group"},
-                {"field": "value", "title": "Value", "format": ".4~g"},
+                {"field": "value", "title": "Value", "format": fmt},
             ],
         },
     }
@@ -199,9 +214,9 @@ def boxes(dist: dict, shown: list[str], all_groups: list[str], measure: str) -> 
                         "color": colour,
                         "tooltip": [
                             {"field": "group", "title": "Group"},
-                            {"field": "q1", "title": "Q1", "format": ".4~g"},
-                            {"field": "median", "title": "Median", "format": ".4~g"},
-                            {"field": "q3", "title": "Q3", "format": ".4~g"},
+                            {"field": "q1", "title": "Q1", "format": fmt},
+                            {"field": "median", "title": "Median", "format": fmt},
+                            {"field": "q3", "title": "Q3", "format": fmt},
                         ],
                     },
                 },

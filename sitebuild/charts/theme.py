@@ -153,9 +153,7 @@ def _prune(node: dict, inherited=None, encoding: dict | None = None, named=None)
     values = _values(node, inherited, named)
     merged = {**(encoding or {}), **node.get("encoding", {})}
     if "layer" in node:
-        node["layer"] = [
-            layer for layer in node["layer"] if _prune(layer, values, merged, named)
-        ]
+        node["layer"] = [layer for layer in node["layer"] if _prune(layer, values, merged, named)]
         return bool(node["layer"])
     if "mark" in node:
         return _layer_drawable(node, values, merged)

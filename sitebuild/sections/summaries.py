@@ -196,8 +196,9 @@ def charts(ds: dict, settings: SiteSettings) -> list[Chart]:
                 id=f"sum-{mi}-means",
                 title=f"Mean of {measure} by group",
                 description=(
-                    f"Each group's mean of {measure} with its {level} confidence interval; "
-                    "intervals that overlap a lot suggest differences sampling noise could produce."
+                    f"Each group's mean of {measure} with its {level} confidence interval. "
+                    "Overlap is not a test: two intervals can overlap while the groups differ; "
+                    "the comparisons below say which differ."
                 ),
                 spec=draw.mean_intervals(rows, ds["groups"], measure),
                 table=f"sum-{mi}",
@@ -211,7 +212,7 @@ def charts(ds: dict, settings: SiteSettings) -> list[Chart]:
                     f"Histograms of {measure} per group on shared bins, as the share of each "
                     "group's values, so groups of different sizes compare fairly."
                 ),
-                spec=draw.histograms(dist, shown, ds["groups"], measure),
+                spec=draw.histograms(dist, shown, ds["groups"], measure, draw.value_format(rows)),
                 table=f"sum-{mi}",
             )
         )
@@ -224,7 +225,7 @@ def charts(ds: dict, settings: SiteSettings) -> list[Chart]:
                     "the line is the median, whiskers reach the furthest values within 1.5 IQR, "
                     "and dots are values beyond."
                 ),
-                spec=draw.boxes(dist, shown, ds["groups"], measure),
+                spec=draw.boxes(dist, shown, ds["groups"], measure, draw.value_format(rows)),
                 table=f"sum-{mi}",
             )
         )

@@ -12,8 +12,8 @@ import time
 from dataclasses import dataclass, field
 from pathlib import Path
 
-from ..cache import CACHE_DIR
 from .. import stopping
+from ..cache import CACHE_DIR
 from ..errors import BuildLocked, SitebuildError
 from ..manifest import Manifest
 from .render import MARKER

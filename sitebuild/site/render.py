@@ -33,8 +33,9 @@ def packaged_layouts() -> Path:
     return Path(__file__).resolve().parents[2] / "layouts"
 
 
-def _num(value, digits: int = 4) -> str:
-    """Format a number for a page: significant digits, thousands separators, '—' for None."""
+def _num(value, decimals: int | None = None, digits: int = 4) -> str:
+    """Format a number for a page: thousands separators, '—' for None; ``decimals`` fixed
+    decimals (a table column's, see :func:`_column_decimals`), else significant ``digits``."""
     if value is None:
         return "—"
     if isinstance(value, bool):
@@ -43,6 +44,8 @@ def _num(value, digits: int = 4) -> str:
         return f"{value:,}"
     if not math.isfinite(value):
         return "—"
+    if decimals is not None and abs(value) < 1e15:
+        return f"{value:,.{decimals}f}"
     if value == 0:
         return "0"
     magnitude = math.floor(math.log10(abs(value)))
@@ -53,6 +56,44 @@ def _num(value, digits: int = 4) -> str:
     if "." in text:
         text = text.rstrip("0").rstrip(".")
     return text
+
+
+def _is_p(key: str) -> bool:
+    return key == "p" or key.startswith("p_") or key.endswith("_p") or "_p_" in key
+
+
+def _column_decimals(table) -> dict:
+    """Return fixed decimals for each numeric column of a table: three significant digits of
+    the column's range, so a column never mixes 66.01 with 56.8 and values near 10,000,000
+    that differ by 0.3 stay apart. Integer, p-value and single-valued columns keep the
+    default (significant digits)."""
+    out = {}
+    for key, _ in table.columns:
+        if _is_p(key):
+            continue
+        values = [
+            v
+            for row in table.rows
+            if isinstance(v := row.get(key), float) and math.isfinite(v) and abs(v) < 1e15
+        ]
+        if len(values) < 2:
+            continue
+        spread = max(values) - min(values)
+        if spread <= 0:
+            continue
+        largest = max(abs(v) for v in values)
+        # Never more digits than a double holds (about 15 significant).
+        cap = max(0, 14 - math.floor(math.log10(largest)))
+        out[key] = min(cap, 8, max(0, 2 - math.floor(math.log10(spread))))
+    return out
+
+
+def _unit_decimals(rows) -> int | None:
+    """Return the decimals for one measure's values from its summary rows (each with "sd"):
+    see :func:`sitebuild.stats.findings.measure_decimals`."""
+    from ..stats.findings import measure_decimals
+
+    return measure_decimals({"groups": list(rows)})
 
 
 def _pval(value) -> str:
@@ -113,7 +154,14 @@ def environment(project_layouts: Path | None = None):
         trim_blocks=True,
         lstrip_blocks=True,
     )
-    env.filters.update(num=_num, pval=_pval, pct=_pct, inline_json=_inline_json)
+    env.filters.update(
+        num=_num,
+        pval=_pval,
+        pct=_pct,
+        inline_json=_inline_json,
+        column_decimals=_column_decimals,
+        unit_decimals=_unit_decimals,
+    )
     return env
 
 

@@ -385,7 +385,10 @@ def _scope_table(
                         result = kendall(sample[:, i], sample[:, j], level, kendall_limit, rng)
                         if result.r is None:
                             result = _undefined(
-                                "kendall", kendall_limit, level, "the random sample has no variation"
+                                "kendall",
+                                kendall_limit,
+                                level,
+                                "the random sample has no variation",
                             )
                         result = replace(result, n_available=rows)
                     pairs.append((i, j, result))

@@ -15,8 +15,9 @@ MAX_UNSURE = 2
 MAX_GROUPS_NAMED = 12
 
 CAUTIONS = (
-    "These data are observational: a difference between groups shows an association, not "
-    "that belonging to a group causes it.",
+    "Unless the groups were formed by random assignment, a difference between them shows an "
+    "association, not that belonging to a group causes it; other differences between the "
+    "groups may explain it.",
     "A result that is not significant does not show that groups are the same; only an "
     "equivalence check against a stated margin can support that.",
     "Running many tests raises the chance of a false alarm; the adjusted p-values allow for "
@@ -43,16 +44,58 @@ def format_p(p: float | None) -> str:
 
 
 def format_num(x: float | None) -> str:
-    """Return a number with 3 significant digits (no exponent for everyday sizes).
+    """Return a number with 3 significant digits, in fixed notation for everyday sizes.
 
     Examples
     --------
-    >>> format_num(1234.5678), format_num(-0.000123456)
-    ('1.23e+03', '-0.000123')
+    >>> format_num(1234.5678), format_num(-0.000123456), format_num(0.5)
+    ('1,235', '-0.000123', '0.5')
     """
     if x is None or not math.isfinite(x):
         return "not available"
-    return f"{x:.3g}"
+    if x == 0:
+        return "0"
+    magnitude = math.floor(math.log10(abs(x)))
+    if magnitude >= 15 or magnitude < -6:
+        return f"{x:.3g}"
+    if magnitude >= 2:
+        return f"{x:,.0f}"
+    return f"{x:,.{2 - magnitude}f}".rstrip("0").rstrip(".")
+
+
+def measure_decimals(entry: dict) -> int | None:
+    """Return the decimals for values of one measure: three significant digits of its spread.
+
+    Values in the measure's units (means, medians, differences, intervals, margins) are all
+    printed with this many decimals, so a measure near 10,000,000 with SD 0.1 reads
+    10,000,000.123 rather than 1e+07, and one column never mixes 66.01 with 56.8.
+
+    Examples
+    --------
+    >>> measure_decimals({"groups": [{"sd": 20.3}, {"sd": 18.0}]})
+    1
+    """
+    sds = sorted(
+        g["sd"] for g in entry.get("groups", []) if g.get("sd") is not None and g["sd"] > 0
+    )
+    if not sds:
+        return None
+    typical = sds[len(sds) // 2]
+    return min(10, max(0, 2 - math.floor(math.log10(typical))))
+
+
+def format_value(x: float | None, decimals: int | None) -> str:
+    """Return a value in the measure's units with ``decimals`` fixed decimals (see
+    :func:`measure_decimals`), or 3 significant digits when the decimals are unknown.
+
+    Examples
+    --------
+    >>> format_value(10000000.12345, 3), format_value(22.0, 1)
+    ('10,000,000.123', '22.0')
+    """
+    if decimals is None or x is None or not math.isfinite(x) or abs(x) >= 1e15:
+        return format_num(x)
+    return f"{x:,.{decimals}f}"
 
 
 def p_phrase(p: float | None) -> str:
@@ -75,7 +118,7 @@ def _pair_name(r: dict) -> str:
     return f"'{r['a']}' and '{r['b']}'"
 
 
-def _difference_sentence(r: dict, confidence: float) -> str:
+def _difference_sentence(r: dict, confidence: float, decimals: int | None) -> str:
     est, lo, hi = r.get("estimate"), r.get("ci_low"), r.get("ci_high")
     higher = (est or 0) > 0
     word = "higher" if higher else "lower"
@@ -88,7 +131,7 @@ def _difference_sentence(r: dict, confidence: float) -> str:
         else "on average"
     )
     interval = (
-        f" ({confidence:.0%} CI {format_num(lo)} to {format_num(hi)})"
+        f" ({confidence:.0%} CI {format_value(lo, decimals)} to {format_value(hi, decimals)})"
         if lo is not None and hi is not None
         else ""
     )
@@ -99,7 +142,7 @@ def _difference_sentence(r: dict, confidence: float) -> str:
         else ""
     )
     return (
-        f"'{r['a']}' is {word} than '{r['b']}' by {format_num(abs(est or 0))} {how}"
+        f"'{r['a']}' is {word} than '{r['b']}' by {format_value(abs(est or 0), decimals)} {how}"
         f"{interval}{eff} (adjusted {p_phrase(r.get('p_adjusted'))})."
     )
 
@@ -130,7 +173,10 @@ def measure_findings(entry: dict, settings) -> list[str]:
     # Ordering of groups by the summary the lead test works with.
     centre = entry.get("centre", "mean")
     rows = sorted(entry["groups"], key=lambda r: -(r[centre] or 0.0))
-    named = ", ".join(f"'{r['group']}' ({format_num(r[centre])})" for r in rows[:MAX_GROUPS_NAMED])
+    decimals = measure_decimals(entry)
+    named = ", ".join(
+        f"'{r['group']}' ({format_value(r[centre], decimals)})" for r in rows[:MAX_GROUPS_NAMED]
+    )
     more = f", and {len(rows) - MAX_GROUPS_NAMED} more" if len(rows) > MAX_GROUPS_NAMED else ""
     out.append(f"By {centre}, highest first: {named}{more}.")
 
@@ -148,11 +194,23 @@ def measure_findings(entry: dict, settings) -> list[str]:
     )
     out.append(f"By {lead['test']}, {verdict} ({p_phrase(lead['p'])}){eff}.")
     others = [o for o in entry["omnibus"] if o is not lead and o["p"] is not None]
+    unequal = _unequal_spread(entry)
+    if unequal:
+        # Welch leads because the spreads differ: the equal-spread ANOVA is not a fair check.
+        set_aside = [o for o in others if o["test"] == EQUAL_SPREAD_TEST]
+        others = [o for o in others if o["test"] != EQUAL_SPREAD_TEST]
+        if set_aside and (set_aside[0]["p"] < alpha) != lead_sig:
+            out.append(
+                f"The one-way ANOVA ({p_phrase(set_aside[0]['p'])}) reaches the other verdict, "
+                "but it assumes equal spread, which these groups do not have; it is not used "
+                "as a check here."
+            )
     disagree = [o for o in others if (o["p"] < alpha) != lead_sig]
     if disagree:
         names = " and ".join(f"{o['test']} ({p_phrase(o['p'])})" for o in disagree)
         out.append(
-            f"The sensitivity check does not agree: {names} reach the other verdict at "
+            f"The sensitivity check does not agree: {names} "
+            f"{'reaches' if len(disagree) == 1 else 'reach'} the other verdict at "
             f"alpha = {alpha:g}. Treat the overall result as borderline and look at the "
             "distributions."
         )
@@ -167,10 +225,11 @@ def measure_findings(entry: dict, settings) -> list[str]:
         if differ:
             out.append(
                 f"Comparing {family.get('description')}, with p-values adjusted by "
-                f"{adjust_name}: {len(differ)} of {len(pairs)} comparisons show a difference."
+                f"{adjust_name}: {len(differ)} of {len(pairs)} "
+                f"{'comparison shows' if len(pairs) == 1 else 'comparisons show'} a difference."
             )
             for r in differ[:MAX_LISTED]:
-                out.append(_difference_sentence(r, confidence))
+                out.append(_difference_sentence(r, confidence, decimals))
             if len(differ) > MAX_LISTED:
                 out.append(f"{len(differ) - MAX_LISTED} more differences are listed in the table.")
         else:
@@ -181,7 +240,7 @@ def measure_findings(entry: dict, settings) -> list[str]:
         equivalent = [r for r in pairs if r.get("equivalent")]
         for r in equivalent[:MAX_LISTED]:
             out.append(
-                f"{_pair_name(r)} are equivalent within ±{format_num(r['margin'])}: the two "
+                f"{_pair_name(r)} are equivalent within ±{format_value(r['margin'], decimals)}: the two "
                 f"one-sided tests (adjusted {p_phrase(r.get('tost_p_adjusted'))}) rule out a "
                 "difference larger than the margin."
             )
@@ -189,57 +248,80 @@ def measure_findings(entry: dict, settings) -> list[str]:
             out.append(f"{len(equivalent) - MAX_LISTED} more equivalent pairs are in the table.")
         unsure = [r for r in pairs if r["conclusion"] == "inconclusive"]
         for r in unsure[:MAX_UNSURE]:
+            margin = (
+                f"neither a difference nor equivalence within "
+                f"±{format_value(r['margin'], decimals)} could be shown"
+                if r.get("margin") is not None
+                else "no difference could be shown"
+            )
+            raw_tost = r.get("tost_p")
+            if raw_tost is not None and raw_tost < alpha:
+                # Equivalent on its own; the adjustment across the family took it away.
+                out.append(
+                    f"{_pair_name(r)}: inconclusive — on its own this pair is equivalent within "
+                    f"±{format_value(r['margin'], decimals)} ({p_phrase(raw_tost)}), but not after "
+                    f"allowing for the {family.get('size')} comparisons (adjusted "
+                    f"{p_phrase(r.get('tost_p_adjusted'))})."
+                )
+                continue
             few = min(r["n_a"], r["n_b"])
             why = (
                 f"too few rows (the smaller group has {few})"
                 if few < 10
                 else "too much spread for the number of rows"
             )
-            margin = (
-                f"neither a difference nor equivalence within ±{format_num(r['margin'])} "
-                "could be shown"
-                if r.get("margin") is not None
-                else "no difference could be shown"
-            )
             out.append(
                 f"{_pair_name(r)}: inconclusive — {margin}, because of {why}. With these sizes "
-                f"and spread only a difference of about {format_num(r['detectable_difference'])}"
-                " or more would be detected reliably (80% power)."
+                "and spread only a difference of about "
+                f"{format_value(r['detectable_difference'], decimals)} or more would be detected "
+                "reliably (80% power, before adjustment for the number of comparisons)."
             )
         if len(unsure) > MAX_UNSURE:
             rest = [r["detectable_difference"] for r in unsure[MAX_UNSURE:]]
             rest = [d for d in rest if d is not None]
             span = (
-                f"; they could detect only differences of {format_num(min(rest))} to "
-                f"{format_num(max(rest))} or more"
+                f"; they could detect only differences of {format_value(min(rest), decimals)} "
+                f"to {format_value(max(rest), decimals)} or more"
                 if rest
                 else ""
             )
             out.append(
-                f"{len(unsure) - MAX_UNSURE} more pairs are inconclusive for the same kind of "
-                f"reason{span} (see the table)."
+                f"{len(unsure) - MAX_UNSURE} more {'pair is' if len(unsure) - MAX_UNSURE == 1 else 'pairs are'} "
+                f"inconclusive{span} (see the table for each one's reason)."
             )
         plain = [r for r in pairs if r["conclusion"] == "no clear difference"]
         if plain:
-            smallest = min(
-                (
-                    r["detectable_difference"]
-                    for r in plain
-                    if r["detectable_difference"] is not None
-                ),
-                default=None,
-            )
+            sizes = [
+                r["detectable_difference"] for r in plain if r["detectable_difference"] is not None
+            ]
+            if not sizes:
+                reach = ""
+            elif len(sizes) == 1 or min(sizes) == max(sizes):
+                reach = (
+                    " — with these data only a difference of about "
+                    f"{format_value(sizes[0], decimals)} or more would have been detected reliably"
+                )
+            else:
+                reach = (
+                    " — with these data only differences of about "
+                    f"{format_value(min(sizes), decimals)} to {format_value(max(sizes), decimals)} "
+                    "or more (depending on the pair) would have been detected reliably"
+                )
             out.append(
                 f"{_count(len(plain), 'comparison shows', 'comparisons show')} no clear "
-                "difference; that is not proof of "
-                "sameness — with these data only differences of about "
-                f"{format_num(smallest)} or more would have been detected reliably."
+                f"difference; that is not proof of sameness{reach} (80% power, before "
+                "adjustment for the number of comparisons)."
             )
-        split = [r for r in pairs if r.get("disagree")]
+        # Tukey's HSD assumes equal spread; when the spreads differ it is no fair check.
+        fair = {
+            id(r): [n for n in r.get("disagree", []) if not (unequal and n == "tukey_p")]
+            for r in pairs
+        }
+        split = [r for r in pairs if fair[id(r)]]
         for r in split[:MAX_LISTED]:
             out.append(
                 f"For {_pair_name(r)} the lead test and a sensitivity test disagree "
-                f"({', '.join(_test_name(n) for n in r['disagree'])}); the difference is "
+                f"({', '.join(_test_name(n) for n in fair[id(r)])}); the difference is "
                 "borderline."
             )
         if len(split) > MAX_LISTED:
@@ -248,6 +330,19 @@ def measure_findings(entry: dict, settings) -> list[str]:
             )
     out.extend(CAUTIONS)
     return out
+
+
+EQUAL_SPREAD_TEST = "one-way ANOVA"
+
+
+def _unequal_spread(entry: dict) -> bool:
+    """True when the lead was given to Welch's ANOVA because the spreads differ."""
+    # The two spread reasons the comparisons section gives (sections/comparisons._choose_lead);
+    # unbalanced sizes alone leave the equal-spread tests a fair check.
+    reason = entry.get("lead_reason") or ""
+    return entry.get("lead_test") == "Welch's ANOVA" and (
+        "unequal spread" in reason or "largest standard deviation" in reason
+    )
 
 
 def _count(n: int, one: str, many: str) -> str:
