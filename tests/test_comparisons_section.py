@@ -315,3 +315,47 @@ def test_large_groups_use_a_seeded_hodges_lehmann_sample():
     assert pair["hl_ci_low"] <= signed <= pair["hl_ci_high"]
     again = sec.compute(make_table(arrays), SiteSettings(), np.random.default_rng(1))
     assert again["comparisons"][0]["pairs"][0]["hl_shift"] == pair["hl_shift"]  # seeded
+
+
+def test_groups_that_differ_in_x_are_flagged_as_a_possible_confounder(tmp_path):
+    import json
+
+    import numpy as np
+    from scipy import stats
+
+    import sitebuild
+    from conftest import write_project
+
+    rng = np.random.default_rng(12)
+    rows = []
+    for g, shift in (("Early", 0.0), ("Late", 0.0), ("Night", 2.0)):
+        for _ in range(40):
+            lines = float(rng.poisson(3 + shift) + 1)
+            rows.append((g, lines, 20 + 7 * lines + float(rng.normal(0, 3))))
+    text = "shift,lines,time\n" + "".join(f"{g},{x!r},{y!r}\n" for g, x, y in rows)
+    root = write_project(
+        tmp_path / "p",
+        """
+        [site]
+        title = "Balance"
+        [[datasets]]
+        name = "Picks"
+        file = "d.csv"
+        group = "shift"
+        measures = ["time"]
+        x = "lines"
+        """,
+        {"d.csv": text},
+    )
+    out = tmp_path / "site"
+    sitebuild.build(root, out=out, quiet=True)
+    entry = json.loads((out / "results.json").read_text("utf-8"))["datasets"][0]["comparisons"][0]
+    balance = entry["x_balance"]
+    # Reference: scipy.stats.kruskal on the x values of each group.
+    ref = stats.kruskal(*[[x for g, x, _ in rows if g == k] for k in ("Early", "Late", "Night")])
+    assert balance["p"] == pytest.approx(ref.pvalue, rel=1e-9)
+    assert balance["statistic"] == pytest.approx(ref.statistic, rel=1e-9)
+    assert balance["differs"] and balance["highest"]["group"] == "Night"
+    text = " ".join(entry["findings"])
+    assert "The groups also differ in 'lines'" in text
+    assert "part of these differences may come from 'lines'" in text

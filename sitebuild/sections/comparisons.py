@@ -719,7 +719,57 @@ def compute(table, settings, rng: np.random.Generator, partial: dict | None = No
             )
     else:
         entries = [_measure_entry(table, m, settings, child, perm_seed) for m, child in jobs]
+    balance = _x_balance(table, settings)
+    if balance is not None:
+        for entry in entries:
+            entry["x_balance"] = balance
+            if balance["differs"] and entry.get("lead_test") is not None:
+                # Just before the general cautions, which close every list of findings.
+                at = next(
+                    (i for i, t in enumerate(entry["findings"]) if t in findings_mod.CAUTIONS),
+                    len(entry["findings"]),
+                )
+                entry["findings"].insert(at, _x_balance_sentence(balance, entry["measure"]))
     return {"comparisons": entries}
+
+
+def _x_balance(table, settings) -> dict | None:
+    """Return whether the groups differ in the explanatory column ``x`` (Kruskal–Wallis).
+
+    When they do, a difference in a measure may come partly from ``x`` (a confounder): the
+    night shift picks bigger orders, the late sowings got warmer weather. None without ``x``.
+    """
+    x = table.spec.x
+    if not x or x in table.spec.measures:
+        return None
+    arrays = [a[~np.isnan(a)] for a in table.by_group(x)]
+    usable = [(g, a) for g, a in zip(table.groups, arrays, strict=True) if a.size >= 2]
+    if len(usable) < 2 or np.ptp(np.concatenate([a for _, a in usable])) == 0:
+        return None
+    kw = kruskal_wallis([a for _, a in usable])
+    means = {g: float(np.mean(a)) for g, a in usable}
+    low, high = min(means, key=means.get), max(means, key=means.get)
+    return {
+        "x": x,
+        "test": TEST_KW,
+        "statistic": _num(kw.statistic),
+        "df": _num(kw.df),
+        "p": _num(kw.pvalue),
+        "differs": bool(kw.pvalue is not None and kw.pvalue < settings.alpha),
+        "lowest": {"group": low, "mean": means[low]},
+        "highest": {"group": high, "mean": means[high]},
+    }
+
+
+def _x_balance_sentence(balance: dict, measure: str) -> str:
+    low, high = balance["lowest"], balance["highest"]
+    return (
+        f"The groups also differ in '{balance['x']}' ({balance['test']}, "
+        f"{findings_mod.p_phrase(balance['p'])}; mean {findings_mod.format_num(low['mean'])} in "
+        f"'{low['group']}' to {findings_mod.format_num(high['mean'])} in '{high['group']}'). If "
+        f"'{balance['x']}' affects '{measure}', part of these differences may come from "
+        f"'{balance['x']}' rather than from the groups themselves."
+    )
 
 
 def charts(dataset: dict, settings) -> list:
