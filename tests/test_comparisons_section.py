@@ -324,6 +324,7 @@ def test_groups_that_differ_in_x_are_flagged_as_a_possible_confounder(tmp_path):
     from scipy import stats
 
     import sitebuild
+
     from conftest import write_project
 
     rng = np.random.default_rng(12)
