@@ -291,7 +291,8 @@ def summary_lines(changes: dict, limit: int = 8) -> list[str]:
         if d["moved"]:
             n = len(d["moved"])
             what = "group mean or median" if n == 1 else "group means or medians"
-            parts.append(f"{n} {what} moved beyond sampling noise")
+            whose = "its" if n == 1 else "their"
+            parts.append(f"{n} {what} moved by more than {whose} combined standard error")
         if d["verdicts"]:
             parts.append(f"{_plural(len(d['verdicts']), 'pairwise conclusion')} changed")
         if d["correlations"]:
@@ -302,7 +303,9 @@ def summary_lines(changes: dict, limit: int = 8) -> list[str]:
             parts.append(f"{_plural(len(d['curved']), 'curved-relationship flag')} changed")
         lines.append(f"{d['name']}: " + "; ".join(parts) + ".")
     if not lines:
-        lines.append("Numbers were recomputed; nothing moved beyond sampling noise.")
+        lines.append(
+            "Numbers were recomputed; no mean or median moved by more than its combined standard error."
+        )
     if len(lines) > limit:
         lines = lines[: limit - 1] + [
             f"... and {len(lines) - limit + 1} more (see the change page)."

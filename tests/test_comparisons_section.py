@@ -179,6 +179,16 @@ def test_lead_test_follows_the_documented_checks():
     assert lead["skewed"] == ("Kruskal–Wallis", "Mann–Whitney U")
 
 
+def test_the_skewness_of_a_tiny_group_does_not_choose_the_test():
+    rng = np.random.default_rng(4)
+    # Three normal groups of 40 and one of 3 whose values happen to be skewed (G1 about 1.7).
+    arrays = [rng.normal(0, 1, 40) for _ in range(3)] + [np.array([0.0, 0.1, 3.0])]
+    entry = sec.compute(make_table(arrays), SiteSettings(), np.random.default_rng(1))[
+        "comparisons"
+    ][0]
+    assert entry["lead_test"] != "Kruskal–Wallis", entry["lead_reason"]
+
+
 def test_reference_group_gives_dunnett_and_no_letters():
     rng = np.random.default_rng(3)
     arrays = [rng.normal(i * 0.5, 1, 20) for i in range(4)]
@@ -360,3 +370,12 @@ def test_groups_that_differ_in_x_are_flagged_as_a_possible_confounder(tmp_path):
     text = " ".join(entry["findings"])
     assert "The groups also differ in 'lines'" in text
     assert "part of these differences may come from 'lines'" in text
+
+
+def test_every_null_number_in_a_pair_has_its_reason(example_site):
+    results = json.loads((example_site / "results.json").read_text(encoding="utf-8"))
+    for ds in results["datasets"]:
+        for entry in ds["comparisons"]:
+            for pair in entry["pairs"]:
+                missing = {k for k, v in pair.items() if v is None} - set(pair["null_reasons"])
+                assert not missing, (ds["name"], entry["measure"], missing)

@@ -67,6 +67,9 @@ SKEW_LIMIT = 1.0
 SD_RATIO_LIMIT = 2.0
 SIZE_RATIO_LIMIT = 1.5
 SMALL_GROUP = 30
+# Skewness of fewer values is mostly noise (G1 of 3 values cannot pass ±1.15 by much), so such
+# a group cannot switch a whole measure to rank tests (common practice).
+SKEW_MIN_N = 10
 FEW_ROWS = 10
 # Values beyond this magnitude (or below its inverse) cannot be raised to the fourth power
 # (Welch degrees of freedom square the variances) safely in float64.
@@ -184,7 +187,11 @@ def _omnibus(samples: list[Sample], ranks: list[np.ndarray]) -> tuple[list[dict]
 def _choose_lead(group_rows: list[dict], spread_row: dict, alpha: float) -> tuple[str, str]:
     ns = [r["n"] for r in group_rows]
     sds = [r["sd"] for r in group_rows]
-    skews = [(r["group"], r["skewness"]) for r in group_rows if r["skewness"] is not None]
+    skews = [
+        (r["group"], r["skewness"])
+        for r in group_rows
+        if r["skewness"] is not None and r["n"] >= SKEW_MIN_N
+    ]
     worst = max(skews, key=lambda t: abs(t[1]), default=(None, 0.0))
     if abs(worst[1]) > SKEW_LIMIT and min(ns) < SMALL_GROUP:
         return TEST_KW, (
@@ -577,11 +584,17 @@ def _measure_entry(
         adjusted = adjust_pvalues([r[key] for r in records], method)
         for r, q in zip(records, adjusted, strict=True):
             r[out] = _num(q)
+            if r[out] is None and r[key] is None:
+                # Every null number carries its reason: that of the unadjusted p, if known.
+                why = r["null_reasons"].get(key) or _NULL_P_REASONS.get(key, "not computed")
+                r["null_reasons"].setdefault(key, why)
+                r["null_reasons"].setdefault(out, why)
     alpha = settings.alpha
     for r in records:
         r["significant"] = bool(r["p_adjusted"] is not None and r["p_adjusted"] < alpha)
         if margin is None:
             r["equivalent"] = None
+            r["null_reasons"].setdefault("margin", _NULL_P_REASONS["tost_p"])
         else:
             r["equivalent"] = bool(
                 r["tost_p_adjusted"] is not None and r["tost_p_adjusted"] < alpha
@@ -731,6 +744,12 @@ def compute(table, settings, rng: np.random.Generator, partial: dict | None = No
                 )
                 entry["findings"].insert(at, _x_balance_sentence(balance, entry["measure"]))
     return {"comparisons": entries}
+
+
+_NULL_P_REASONS = {
+    "tost_p": "no equivalence margin is set for this measure",
+    "permutation_p": "no permutation test requested (permutations = 0)",
+}
 
 
 def _x_balance(table, settings) -> dict | None:

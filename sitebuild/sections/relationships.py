@@ -486,6 +486,9 @@ def charts(dataset: dict, settings) -> list[Chart]:
     return out
 
 
+CURVED_LINE_NOTE = "curved: a single slope does not describe this relationship (see above)"
+
+
 def tables(dataset: dict, settings) -> list[DataTable]:
     """Return the correlation table per scope, the curvature table and the straight lines."""
     info = dataset.get("relationship_columns")
@@ -558,6 +561,7 @@ def tables(dataset: dict, settings) -> list[DataTable]:
                 caption="The rule: " + info["curve_rule"] + ". Each curve is described above.",
             )
         )
+    curved = {(r["group"], r["a"], r["b"]) for r in dataset["relationships"] if r["curved"]}
     if dataset["linear_fits"]:
         out.append(
             DataTable(
@@ -577,7 +581,13 @@ def tables(dataset: dict, settings) -> list[DataTable]:
                     ("note", "Note"),
                 ),
                 rows=tuple(
-                    f | {"group": "all rows" if f["group"] is None else f["group"]}
+                    f
+                    | {
+                        "group": "all rows" if f["group"] is None else f["group"],
+                        "note": CURVED_LINE_NOTE
+                        if (f["group"], f["x"], f["y"]) in curved
+                        else f["note"],
+                    }
                     for f in dataset["linear_fits"]
                 ),
                 caption=(
