@@ -33,7 +33,8 @@ def _dataset_lines(reports) -> list[str]:
         reused = " (unchanged, reused)" if d.reused else ""
         lines.append(
             f"  {d.name}: {d.rows_read:,} rows read, {d.rows_used:,} used{dropped}; "
-            f"{d.groups} groups, {d.measures} measures{reused}"
+            f"{d.groups} group{'s' if d.groups != 1 else ''}, "
+            f"{d.measures} measure{'s' if d.measures != 1 else ''}{reused}"
         )
         for column, problem in sorted(d.unparsed.items()):
             examples = ", ".join(repr(e) for e in problem["examples"])

@@ -153,3 +153,19 @@ def test_equal_spread_tests_are_not_a_check_when_spreads_differ():
     )
     text = " ".join(measure_findings(entry, SiteSettings()))
     assert "does not agree" in text and "borderline" in text
+
+
+def test_a_difference_inside_the_agreed_margin_is_called_small():
+    inside = _pair("A", "B", estimate=1.35, ci_low=0.30, ci_high=1.41, margin=1.5)
+    text = " ".join(measure_findings(_entry([inside]), SiteSettings()))
+    assert "The whole interval lies within the ±1.5 agreed not to matter" in text
+    reaching = _pair("A", "B", estimate=1.35, ci_low=0.30, ci_high=2.41, margin=1.5)
+    text = " ".join(measure_findings(_entry([reaching]), SiteSettings()))
+    assert "the interval reaches beyond it" in text
+
+
+def test_a_single_comparison_is_not_said_as_one_of_one():
+    entry = _entry([_pair("A", "B")])
+    entry["family"] = {**entry["family"], "size": 1, "description": "the 2 groups"}
+    text = " ".join(measure_findings(entry, SiteSettings()))
+    assert "Comparing the 2 groups: they differ." in text and "1 of 1" not in text

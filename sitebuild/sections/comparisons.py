@@ -477,7 +477,7 @@ def _measure_entry(
     elif k <= MAX_PAIRWISE_GROUPS:
         mode = "all pairs"
         pairs_idx = [(i, j) for i in range(k) for j in range(i + 1, k)]
-        family_text = f"all {len(pairs_idx)} pairs of {k} groups"
+        family_text = "the 2 groups" if k == 2 else f"all {len(pairs_idx)} pairs of {k} groups"
     else:
         mode = "each group vs the rest"
         summary_mode = True

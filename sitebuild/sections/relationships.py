@@ -207,9 +207,15 @@ def _curve_note(a: str, b: str, line_r2, check, r: float | None = None) -> str |
     return (
         f"{size}'{b}' follows a clear curve against '{a}': the smooth explains "
         f"{100 * check.smooth_adj_r2:.0f}% of its variation, a straight line only "
-        f"{100 * max(line_r2, 0.0):.0f}%. A correlation coefficient measures only the "
+        f"{_share(line_r2)}. A correlation coefficient measures only the "
         "straight-line part of a relationship."
     )
+
+
+def _share(r2: float) -> str:
+    """R² as a whole percentage, with "under 1%" rather than "0%"."""
+    share = 100 * max(r2, 0.0)
+    return "under 1%" if share < 0.5 else f"{share:.0f}%"
 
 
 def _relationship(group, a, b, xv, yv, fit, level, r=None) -> tuple[dict, dict]:

@@ -88,6 +88,17 @@ def _column_decimals(table) -> dict:
     return out
 
 
+def _shown_columns(table) -> list:
+    """Return the columns of a table that hold a value in some row: a column that is empty
+    throughout (Dunnett's p without a reference group, say) only widens the page. The CSV
+    keeps every column."""
+    return [
+        (key, heading)
+        for key, heading in table.columns
+        if any(row.get(key) not in (None, "") for row in table.rows)
+    ] or list(table.columns)
+
+
 def _unit_decimals(rows) -> int | None:
     """Return the decimals for one measure's values from its summary rows (each with "sd"):
     see :func:`sitebuild.stats.findings.measure_decimals`."""
@@ -97,17 +108,22 @@ def _unit_decimals(rows) -> int | None:
 
 
 def _pval(value) -> str:
+    """The same p-value text as the findings (3 significant digits, so 0.0502 is not 0.050)."""
+    from ..stats.findings import format_p
+
     if value is None:
         return "—"
-    if value < 0.001:
-        return "< 0.001"
-    return f"{value:.3f}"
+    return format_p(value)
 
 
-def _pct(value, decimals: int = 1) -> str:
+def _pct(value, decimals: int | None = 1) -> str:
+    """A share as a percentage; ``decimals=None`` shows as many as the value needs (95%,
+    97.5%)."""
     if value is None:
         return "—"
-    return f"{100 * value:.{decimals}f} %"
+    if decimals is None:
+        return f"{100 * value:.6g}%"
+    return f"{100 * value:.{decimals}f}%"
 
 
 def _inline_json(data) -> str:
@@ -154,6 +170,9 @@ def environment(project_layouts: Path | None = None):
         trim_blocks=True,
         lstrip_blocks=True,
     )
+    from ..stats.multiplicity import METHOD_NAMES
+
+    env.globals["adjust_names"] = dict(METHOD_NAMES)
     env.filters.update(
         num=_num,
         pval=_pval,
@@ -161,6 +180,7 @@ def environment(project_layouts: Path | None = None):
         inline_json=_inline_json,
         column_decimals=_column_decimals,
         unit_decimals=_unit_decimals,
+        shown_columns=_shown_columns,
     )
     return env
 

@@ -126,7 +126,8 @@ def _difference_sentence(r: dict, confidence: float, decimals: int | None) -> st
     if lo is not None and hi is not None and not higher:
         lo, hi = -hi, -lo
     how = (
-        "as a typical shift (Hodges–Lehmann)"
+        "as a typical shift (Hodges–Lehmann: the median of all differences between a value "
+        "of one group and a value of the other)"
         if r.get("estimate_name", "").startswith("Hodges")
         else "on average"
     )
@@ -141,9 +142,22 @@ def _difference_sentence(r: dict, confidence: float, decimals: int | None) -> st
         if effect is not None
         else ""
     )
+    margin = r.get("margin")
+    small = ""
+    if margin is not None and lo is not None and hi is not None:
+        if max(abs(lo), abs(hi)) < margin:
+            small = (
+                f" The whole interval lies within the ±{format_value(margin, decimals)} agreed "
+                "not to matter in practice: a real but small difference."
+            )
+        elif abs(est or 0) < margin:
+            small = (
+                f" The estimate is within the ±{format_value(margin, decimals)} agreed not to "
+                "matter in practice, but the interval reaches beyond it."
+            )
     return (
         f"'{r['a']}' is {word} than '{r['b']}' by {format_value(abs(est or 0), decimals)} {how}"
-        f"{interval}{eff} (adjusted {p_phrase(r.get('p_adjusted'))})."
+        f"{interval}{eff} (adjusted {p_phrase(r.get('p_adjusted'))}).{small}"
     )
 
 
@@ -222,7 +236,14 @@ def measure_findings(entry: dict, settings) -> list[str]:
             (r for r in pairs if r["significant"]), key=lambda r: -abs(r.get("effect") or 0.0)
         )
         adjust_name = family.get("adjust_name", "")
-        if differ:
+        if len(pairs) == 1:
+            # One comparison: nothing to adjust, and "1 of 1" reads oddly.
+            out.append(
+                f"Comparing {family.get('description')}: "
+                + ("they differ." if differ else f"no difference at alpha = {alpha:g}.")
+            )
+            out.extend(_difference_sentence(r, confidence, decimals) for r in differ)
+        elif differ:
             out.append(
                 f"Comparing {family.get('description')}, with p-values adjusted by "
                 f"{adjust_name}: {len(differ)} of {len(pairs)} "
@@ -241,8 +262,8 @@ def measure_findings(entry: dict, settings) -> list[str]:
         for r in equivalent[:MAX_LISTED]:
             out.append(
                 f"{_pair_name(r)} are equivalent within ±{format_value(r['margin'], decimals)}: the two "
-                f"one-sided tests (adjusted {p_phrase(r.get('tost_p_adjusted'))}) rule out a "
-                "difference larger than the margin."
+                f"one-sided tests on the difference in means (adjusted "
+                f"{p_phrase(r.get('tost_p_adjusted'))}) rule out a difference larger than the margin."
             )
         if len(equivalent) > MAX_LISTED:
             out.append(f"{len(equivalent) - MAX_LISTED} more equivalent pairs are in the table.")
