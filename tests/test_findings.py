@@ -169,3 +169,12 @@ def test_a_single_comparison_is_not_said_as_one_of_one():
     entry["family"] = {**entry["family"], "size": 1, "description": "the 2 groups"}
     text = " ".join(measure_findings(entry, SiteSettings()))
     assert "Comparing the 2 groups: they differ." in text and "1 of 1" not in text
+
+
+def test_strongly_skewed_groups_get_their_medians_named():
+    entry = _entry([_pair("A", "B")])
+    for g, skew, median in zip(entry["groups"], (1.68, 0.2, 1.2), (2.1, 1.0, 1.9), strict=True):
+        g["skewness"], g["median"] = skew, median
+    text = " ".join(measure_findings(entry, SiteSettings()))
+    assert "2 groups are strongly skewed (up to 1.68 in 'A'" in text
+    assert "better described by the median: 'A' (2.1), 'C' (1.9), 'B' (1)" in text

@@ -223,7 +223,8 @@ def charts(ds: dict, settings: SiteSettings) -> list[Chart]:
                 description=(
                     f"Box view of {measure}: the box spans the middle half of values (q1 to q3), "
                     "the line is the median, whiskers reach the furthest values within 1.5 IQR, "
-                    "and dots are values beyond."
+                    f"and dots are values beyond (at most {MAX_OUTLIER_POINTS} of the most "
+                    "extreme per side and group; the table counts them all)."
                 ),
                 spec=draw.boxes(dist, shown, ds["groups"], measure, draw.value_format(rows)),
                 table=f"sum-{mi}",

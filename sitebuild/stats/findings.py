@@ -11,6 +11,7 @@ from __future__ import annotations
 import math
 
 MAX_LISTED = 6
+SKEW_NOTE = 1.0  # |G1| beyond which the median is named beside the mean (common practice)
 MAX_UNSURE = 2
 MAX_GROUPS_NAMED = 12
 
@@ -193,6 +194,25 @@ def measure_findings(entry: dict, settings) -> list[str]:
     )
     more = f", and {len(rows) - MAX_GROUPS_NAMED} more" if len(rows) > MAX_GROUPS_NAMED else ""
     out.append(f"By {centre}, highest first: {named}{more}.")
+    skewed = [r for r in rows if r.get("skewness") is not None and abs(r["skewness"]) > SKEW_NOTE]
+    if centre == "mean" and skewed:
+        worst = max(skewed, key=lambda r: abs(r["skewness"]))
+        medians = ", ".join(
+            f"'{r['group']}' ({format_value(r['median'], decimals)})"
+            for r in sorted(rows, key=lambda r: -(r.get("median") or 0.0))[:MAX_GROUPS_NAMED]
+            if r.get("median") is not None
+        )
+        out.append(
+            f"{_count(len(skewed), 'group is', 'groups are')} strongly skewed (up to "
+            f"{format_num(worst['skewness'])} in '{worst['group']}'; beyond ±{SKEW_NOTE:g} by "
+            "common practice). "
+            + (
+                "With these group sizes the means and their tests remain reliable, but "
+                if min(r["n"] for r in skewed) >= 30
+                else "The mean of a small skewed group moves with a few values, and "
+            )
+            + f"a typical value is better described by the median: {medians}."
+        )
 
     # Overall test and its sensitivity check.
     lead = next(o for o in entry["omnibus"] if o["test"] == entry["lead_test"])
