@@ -65,24 +65,27 @@ def format_num(x: float | None) -> str:
 
 
 def measure_decimals(entry: dict) -> int | None:
-    """Return the decimals for values of one measure: three significant digits of its spread.
+    """Return the decimals for values of one measure: two significant digits of the typical
+    group's standard error (SD / √n), one digit more than the precision the data give.
 
     Values in the measure's units (means, medians, differences, intervals, margins) are all
     printed with this many decimals, so a measure near 10,000,000 with SD 0.1 reads
-    10,000,000.123 rather than 1e+07, and one column never mixes 66.01 with 56.8.
+    10,000,000.464 rather than 1e+07, and one column never mixes 66.01 with 56.8.
 
     Examples
     --------
-    >>> measure_decimals({"groups": [{"sd": 20.3}, {"sd": 18.0}]})
+    >>> measure_decimals({"groups": [{"sd": 20.3, "n": 96}, {"sd": 18.0, "n": 80}]})
     1
     """
-    sds = sorted(
-        g["sd"] for g in entry.get("groups", []) if g.get("sd") is not None and g["sd"] > 0
+    errors = sorted(
+        g["sd"] / math.sqrt(g["n"]) if g.get("n") else g["sd"]
+        for g in entry.get("groups", [])
+        if g.get("sd") is not None and g["sd"] > 0
     )
-    if not sds:
+    if not errors:
         return None
-    typical = sds[len(sds) // 2]
-    return min(10, max(0, 2 - math.floor(math.log10(typical))))
+    typical = errors[len(errors) // 2]
+    return min(10, max(0, 1 - math.floor(math.log10(typical))))
 
 
 def format_value(x: float | None, decimals: int | None) -> str:
