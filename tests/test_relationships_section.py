@@ -328,3 +328,47 @@ def test_wide_tables_keep_kendall_for_all_rows_only():
     assert row["r"] == pytest.approx(
         stats.spearmanr(cols["m0"][part], cols["m5"][part])[0], rel=1e-12
     )
+
+
+def test_a_correlation_whose_interval_and_p_disagree_is_marked_borderline(tmp_path):
+    # Kendall's interval (Fieller-Hartley-Pearson SE) and its p-value (tie-corrected normal
+    # approximation) are separate approximations; search seeds for a sample where they split.
+    from scipy import stats
+
+    import sitebuild
+
+    from conftest import write_project
+
+    for seed in range(200):
+        rng = np.random.default_rng(seed)
+        x = rng.integers(0, 4, 40).astype(float)
+        y = np.round(0.3 * x + rng.normal(0, 1, 40), 0)
+        tau = stats.kendalltau(x, y)
+        se = (0.437 / (40 - 4)) ** 0.5
+        z = np.arctanh(tau.statistic)
+        excludes = abs(z) > 1.959963984540054 * se
+        if (tau.pvalue < 0.05) != excludes:
+            break
+    else:
+        raise AssertionError("no disagreeing sample in 200 seeds")
+    text = "g,x,y\n" + "".join(f"A,{a},{b}\n" for a, b in zip(x, y, strict=True))
+    root = write_project(
+        tmp_path / "p",
+        """
+        [site]
+        title = "T"
+        [[datasets]]
+        name = "D"
+        file = "d.csv"
+        group = "g"
+        measures = ["y"]
+        x = "x"
+        """,
+        {"d.csv": text},
+    )
+    out = tmp_path / "site"
+    sitebuild.build(root, out=out, quiet=True)
+    ds = json.loads((out / "results.json").read_text("utf-8"))["datasets"][0]
+    row = next(c for c in ds["correlations"] if c["method"] == "kendall" and c["group"] is None)
+    assert row["p"] == pytest.approx(tau.pvalue, rel=1e-9)  # reference: scipy.stats.kendalltau
+    assert "borderline" in (row["note"] or "")

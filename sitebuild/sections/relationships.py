@@ -121,6 +121,17 @@ def _correlations(table, names, settings, rng, chosen: list[int]) -> tuple[list[
                 note = c.reason
             elif c.r is not None and c.ci_low is None:
                 note = "the interval needs at least 4 pairs"
+            if c.p is not None and c.ci_low is not None and c.ci_high is not None:
+                # The interval (Fisher z) and the p-value (t or normal approximation) are
+                # separate approximations; near the edge they can fall on different sides.
+                test_says = c.p < 1 - settings.confidence
+                interval_says = c.ci_low > 0 or c.ci_high < 0
+                if test_says != interval_says:
+                    split = (
+                        "borderline: the unadjusted p-value and the interval, two separate "
+                        "approximations, disagree about zero"
+                    )
+                    note = f"{note}; {split}" if note else split
             out.append(
                 {
                     "group": group,
