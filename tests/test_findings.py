@@ -178,3 +178,16 @@ def test_strongly_skewed_groups_get_their_medians_named():
     text = " ".join(measure_findings(entry, SiteSettings()))
     assert "2 groups are strongly skewed (up to 1.68 in 'A'" in text
     assert "better described by the median: 'A' (2.1), 'C' (1.9), 'B' (1)" in text
+
+
+def test_differences_carry_the_unit_and_percentages_are_points():
+    from sitebuild.stats.findings import measure_unit
+
+    assert measure_unit("pick time [s]") == "s"
+    assert measure_unit("surface temp (°C)") == "°C"
+    assert measure_unit("germinated (%)") == "percentage points"
+    assert measure_unit("defects per panel") == ""
+    entry = _entry([_pair("A", "B")])
+    entry["measure"] = "germinated (%)"
+    text = " ".join(measure_findings(entry, SiteSettings()))
+    assert "'A' is higher than 'B' by 2 percentage points on average" in text

@@ -9,6 +9,7 @@ of thumb (common practice), and the sentences say so.
 from __future__ import annotations
 
 import math
+import re
 
 MAX_LISTED = 6
 SKEW_NOTE = 1.0  # |G1| beyond which the median is named beside the mean (common practice)
@@ -122,7 +123,23 @@ def _pair_name(r: dict) -> str:
     return f"'{r['a']}' and '{r['b']}'"
 
 
-def _difference_sentence(r: dict, confidence: float, decimals: int | None) -> str:
+def measure_unit(measure: str) -> str:
+    """Return the unit a measure's name ends with, as it should follow a difference: "g" for
+    "leaf mass (g)", "percentage points" for "germinated (%)"; "" when there is none.
+
+    Examples
+    --------
+    >>> measure_unit("leaf mass (g)"), measure_unit("germinated (%)"), measure_unit("score")
+    ('g', 'percentage points', '')
+    """
+    match = re.search(r"[(\[]\s*([^()\[\]]{1,12}?)\s*[)\]]\s*$", measure)
+    if not match:
+        return ""
+    unit = match.group(1)
+    return "percentage points" if unit == "%" else unit
+
+
+def _difference_sentence(r: dict, confidence: float, decimals: int | None, unit: str = "") -> str:
     est, lo, hi = r.get("estimate"), r.get("ci_low"), r.get("ci_high")
     higher = (est or 0) > 0
     word = "higher" if higher else "lower"
@@ -160,7 +177,8 @@ def _difference_sentence(r: dict, confidence: float, decimals: int | None) -> st
                 "matter in practice, but the interval reaches beyond it."
             )
     return (
-        f"'{r['a']}' is {word} than '{r['b']}' by {format_value(abs(est or 0), decimals)} {how}"
+        f"'{r['a']}' is {word} than '{r['b']}' by {format_value(abs(est or 0), decimals)}"
+        f"{' ' + unit if unit else ''} {how}"
         f"{interval}{eff} (adjusted {p_phrase(r.get('p_adjusted'))}).{small}"
     )
 
@@ -192,6 +210,7 @@ def measure_findings(entry: dict, settings) -> list[str]:
     centre = entry.get("centre", "mean")
     rows = sorted(entry["groups"], key=lambda r: -(r[centre] or 0.0))
     decimals = measure_decimals(entry)
+    unit = measure_unit(measure)
     named = ", ".join(
         f"'{r['group']}' ({format_value(r[centre], decimals)})" for r in rows[:MAX_GROUPS_NAMED]
     )
@@ -265,7 +284,7 @@ def measure_findings(entry: dict, settings) -> list[str]:
                 f"Comparing {family.get('description')}: "
                 + ("they differ." if differ else f"no difference at alpha = {alpha:g}.")
             )
-            out.extend(_difference_sentence(r, confidence, decimals) for r in differ)
+            out.extend(_difference_sentence(r, confidence, decimals, unit) for r in differ)
         elif differ:
             out.append(
                 f"Comparing {family.get('description')}, with p-values adjusted by "
@@ -273,7 +292,7 @@ def measure_findings(entry: dict, settings) -> list[str]:
                 f"{'comparison shows' if len(pairs) == 1 else 'comparisons show'} a difference."
             )
             for r in differ[:MAX_LISTED]:
-                out.append(_difference_sentence(r, confidence, decimals))
+                out.append(_difference_sentence(r, confidence, decimals, unit))
             if len(differ) > MAX_LISTED:
                 out.append(f"{len(differ) - MAX_LISTED} more differences are listed in the table.")
         else:
