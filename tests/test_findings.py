@@ -191,3 +191,14 @@ def test_differences_carry_the_unit_and_percentages_are_points():
     entry["measure"] = "germinated (%)"
     text = " ".join(measure_findings(entry, SiteSettings()))
     assert "'A' is higher than 'B' by 2 percentage points on average" in text
+
+
+def test_hedges_g_is_qualified_when_spreads_are_very_unequal():
+    entry = _entry([_pair("A", "B")])
+    for g, sd in zip(entry["groups"], (21.5, 2.0, 3.0), strict=True):
+        g["sd"] = sd
+    text = " ".join(measure_findings(entry, SiteSettings()))
+    assert "With spreads this unequal" in text and "Hedges' g, which pools them" in text
+    for g in entry["groups"]:
+        g["sd"] = 2.0
+    assert "spreads this unequal" not in " ".join(measure_findings(entry, SiteSettings()))

@@ -139,7 +139,9 @@ def measure_unit(measure: str) -> str:
     return "percentage points" if unit == "%" else unit
 
 
-def _difference_sentence(r: dict, confidence: float, decimals: int | None, unit: str = "") -> str:
+def _difference_sentence(
+    r: dict, confidence: float, decimals: int | None, unit: str = "", sds: dict | None = None
+) -> str:
     est, lo, hi = r.get("estimate"), r.get("ci_low"), r.get("ci_high")
     higher = (est or 0) > 0
     word = "higher" if higher else "lower"
@@ -176,6 +178,18 @@ def _difference_sentence(r: dict, confidence: float, decimals: int | None, unit:
                 f" The estimate is within the ±{format_value(margin, decimals)} agreed not to "
                 "matter in practice, but the interval reaches beyond it."
             )
+    sd_a, sd_b = (sds or {}).get(r["a"]), (sds or {}).get(r["b"])
+    if (
+        r.get("effect_name") == "Hedges' g"
+        and sd_a
+        and sd_b
+        and max(sd_a, sd_b) > 2 * min(sd_a, sd_b)
+    ):
+        small += (
+            f" With spreads this unequal (SDs {format_value(sd_a, decimals)} and "
+            f"{format_value(sd_b, decimals)}), Hedges' g, which pools them, is hard to read; "
+            "the difference and its interval say more."
+        )
     return (
         f"'{r['a']}' is {word} than '{r['b']}' by {format_value(abs(est or 0), decimals)}"
         f"{' ' + unit if unit else ''} {how}"
@@ -211,6 +225,7 @@ def measure_findings(entry: dict, settings) -> list[str]:
     rows = sorted(entry["groups"], key=lambda r: -(r[centre] or 0.0))
     decimals = measure_decimals(entry)
     unit = measure_unit(measure)
+    sds = {g["group"]: g.get("sd") for g in entry.get("groups", [])}
     named = ", ".join(
         f"'{r['group']}' ({format_value(r[centre], decimals)})" for r in rows[:MAX_GROUPS_NAMED]
     )
@@ -284,7 +299,7 @@ def measure_findings(entry: dict, settings) -> list[str]:
                 f"Comparing {family.get('description')}: "
                 + ("they differ." if differ else f"no difference at alpha = {alpha:g}.")
             )
-            out.extend(_difference_sentence(r, confidence, decimals, unit) for r in differ)
+            out.extend(_difference_sentence(r, confidence, decimals, unit, sds) for r in differ)
         elif differ:
             out.append(
                 f"Comparing {family.get('description')}, with p-values adjusted by "
@@ -292,7 +307,7 @@ def measure_findings(entry: dict, settings) -> list[str]:
                 f"{'comparison shows' if len(pairs) == 1 else 'comparisons show'} a difference."
             )
             for r in differ[:MAX_LISTED]:
-                out.append(_difference_sentence(r, confidence, decimals, unit))
+                out.append(_difference_sentence(r, confidence, decimals, unit, sds))
             if len(differ) > MAX_LISTED:
                 out.append(f"{len(differ) - MAX_LISTED} more differences are listed in the table.")
         else:
