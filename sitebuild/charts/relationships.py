@@ -111,6 +111,9 @@ def correlation_heatmap(cells: list[dict], columns: list[str], alpha: float) -> 
     return themed(spec)
 
 
+MAX_GROUP_BANDS = 3  # group smooths drawn with their bands; more are drawn as lines only
+
+
 def scatter_with_smooths(
     scatter: dict, smooths: list[dict], line: dict | None, groups: list[str]
 ) -> dict:
@@ -123,8 +126,13 @@ def scatter_with_smooths(
     }
     x = {"field": "x", "type": "quantitative", "title": scatter["x"], "scale": {"zero": False}}
     y_title = scatter["y"]
+    curve_groups = {s["group"] for s in smooths if s["group"] is not None}
+    # Beyond a few groups, overlapping bands blur into one another: the group smooths are then
+    # drawn as lines only (their bands stay in results.json), the all-rows smooth
+    # keeps its band.
+    group_bands = len(curve_groups) <= MAX_GROUP_BANDS
     group_curves = [
-        {"group": s["group"], **p}
+        {"group": s["group"], **(p if group_bands else {"x": p["x"], "fit": p["fit"]})}
         for s in smooths
         if s["group"] is not None
         for p in s["points"]
@@ -136,8 +144,16 @@ def scatter_with_smooths(
     layers: list[dict] = [
         {
             "data": {"name": "points"},
-            "mark": {"type": "circle", "size": 14, "opacity": 0.45},
+            "mark": {"type": "point", "filled": True, "size": 16, "opacity": 0.45},
             "encoding": {
+                # Shape repeats the colour so groups part without colour vision (and in
+                # print); one legend, as both scales share the groups and the title.
+                "shape": {
+                    "field": "group",
+                    "type": "nominal",
+                    "title": "Group",
+                    "scale": {"domain": list(groups)},
+                },
                 "x": x,
                 "y": {
                     "field": "y",
@@ -157,7 +173,7 @@ def scatter_with_smooths(
     # Named datasets: each curve's rows are shipped once and shared by its band and line layers.
     datasets = {"points": scatter["points"], "curves": group_curves, "overall": overall}
     has_band = {"filter": "isValid(datum.low) && isValid(datum.high)"}
-    if group_curves:
+    if group_curves and group_bands:
         layers.append(
             {
                 "data": {"name": "curves"},
@@ -171,6 +187,7 @@ def scatter_with_smooths(
                 },
             }
         )
+    if group_curves:
         layers.append(
             {
                 "data": {"name": "curves"},
@@ -230,5 +247,5 @@ def scatter_with_smooths(
                 "encoding": {"x": x, "y": {"field": "fit", "type": "quantitative"}},
             }
         )
-    spec = {"height": 300, "datasets": datasets, "layer": layers}
+    spec = {"width": "container", "height": 300, "datasets": datasets, "layer": layers}
     return themed(spec)

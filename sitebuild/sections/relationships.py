@@ -449,7 +449,7 @@ def compute(table, settings, rng: np.random.Generator, partial: dict | None = No
 
 def charts(dataset: dict, settings) -> list[Chart]:
     """Return the heatmaps (all rows, each group) and one scatter with smooths per measure."""
-    from ..charts.relationships import correlation_heatmap, scatter_with_smooths
+    from ..charts.relationships import MAX_GROUP_BANDS, correlation_heatmap, scatter_with_smooths
 
     info = dataset.get("relationship_columns")
     if not info:
@@ -492,9 +492,16 @@ def charts(dataset: dict, settings) -> list[Chart]:
                 id=f"rel-scatter-{k + 1}",
                 title=f"{y} against {scatter['x']}",
                 description=(
-                    f"Scatter of {shown}, coloured by group, with a LOESS smooth and its "
-                    "pointwise band for each group and for all rows, and the straight-line fit "
-                    "for all rows."
+                    f"Scatter of {shown}, coloured and shaped by group, with a LOESS smooth "
+                    + (
+                        "and its pointwise band for each group and for all rows"
+                        if len({s["group"] for s in smooths if s["group"] is not None})
+                        <= MAX_GROUP_BANDS
+                        else "for each group (drawn without bands, which would blur into one "
+                        "another; they are in results.json) and one with its pointwise band for "
+                        "all rows"
+                    )
+                    + ", and the straight-line fit for all rows."
                 ),
                 spec=scatter_with_smooths(scatter, smooths, line, info["groups"]),
                 table="rel-lines",
