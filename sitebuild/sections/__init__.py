@@ -51,3 +51,4 @@ class DataTable:
     rows: tuple[dict, ...]
     caption: str = ""
     href: str | None = None  # set by the renderer: where its CSV is written in the site
+    csv_only: tuple[str, ...] = ()  # row keys in the CSV but not on the page (shown elsewhere)

@@ -244,6 +244,12 @@ TABLE_COLUMNS = (
 )  # fmt: skip
 
 
+SHAPE_KEYS = (
+    "skewness", "excess_kurtosis", "share_within_1sd", "share_within_2sd", "outliers",
+    "normality_test", "normality_p",
+)  # fmt: skip
+
+
 def _engine_caption(ds: dict) -> str:
     """Say on the page which numbers use every row and which a sample (streamed engines)."""
     source = ds.get("computed_from") or {}
@@ -269,10 +275,14 @@ def tables(ds: dict, settings: SiteSettings) -> list[DataTable]:
                 title=f"Summary of {measure} by group",
                 columns=TABLE_COLUMNS,
                 rows=tuple(rows),
+                # The shape table just above shows these; 23 columns did not fit a screen.
+                csv_only=SHAPE_KEYS,
                 caption=(
                     f"CI: {settings.confidence:.0%} interval for the mean (Student's t). Median CI: "
                     "distribution-free interval from order statistics. Quartiles by linear "
-                    "interpolation (Hyndman & Fan type 7)." + _engine_caption(ds)
+                    "interpolation (Hyndman & Fan type 7). Skewness, kurtosis and normality are under "
+                    "'Shape of each group's values' above; the CSV has every column."
+                    + _engine_caption(ds)
                 ),
             )
         )

@@ -89,13 +89,13 @@ def _column_decimals(table) -> dict:
 
 
 def _shown_columns(table) -> list:
-    """Return the columns of a table that hold a value in some row: a column that is empty
-    throughout (Dunnett's p without a reference group, say) only widens the page. The CSV
-    keeps every column."""
+    """Return the columns of a table to show on the page: those that hold a value in some row
+    (a column empty throughout, Dunnett's p without a reference group say, only widens the
+    page) and are not marked ``csv_only``. The CSV keeps every column."""
     return [
         (key, heading)
         for key, heading in table.columns
-        if any(row.get(key) not in (None, "") for row in table.rows)
+        if key not in table.csv_only and any(row.get(key) not in (None, "") for row in table.rows)
     ] or list(table.columns)
 
 
