@@ -379,3 +379,27 @@ def test_every_null_number_in_a_pair_has_its_reason(example_site):
             for pair in entry["pairs"]:
                 missing = {k for k, v in pair.items() if v is None} - set(pair["null_reasons"])
                 assert not missing, (ds["name"], entry["measure"], missing)
+
+
+@pytest.mark.parametrize(
+    "constant, where",
+    [
+        (0.0, "Its value, 0.00, lies below every value of the compared groups (lowest 1.00)"),
+        (9.0, "Its value, 9.00, lies above every value of the compared groups (highest 6.00)"),
+        (3.0, "Its value, 3.00, lies within the range of the compared groups (1.00 to 6.00;"),
+    ],
+)
+def test_a_group_without_variation_is_placed_among_the_others(constant, where):
+    # A line with no defects at all cannot enter tests that need variation, but the reader is
+    # still told where its value lies.
+    rng = np.random.default_rng(6)
+    arrays = [rng.integers(1, 7, 40).astype(float) for _ in range(2)]
+    arrays[0][:2] = (1.0, 6.0)  # fixes the range of the compared values: 1 to 6
+    arrays.append(np.full(40, constant))
+    entry = sec.compute(make_table(arrays), SiteSettings(), np.random.default_rng(1))[
+        "comparisons"
+    ][0]
+    left_out = [e for e in entry["not_comparable"] if e["reason"].startswith("no variation")]
+    assert len(left_out) == 1 and left_out[0]["value"] == constant
+    text = " ".join(entry["findings"])
+    assert where in text, text

@@ -106,6 +106,8 @@ def _group_rows(groups: Sequence[str], samples: Sequence[Sample]) -> list[dict]:
                 "mean": _num(s.mean),
                 "sd": _num(s.sd) if s.n > 1 else None,
                 "median": _num(np.median(s.sorted)) if s.n else None,
+                "min": _num(s.sorted[0]) if s.n else None,
+                "max": _num(s.sorted[-1]) if s.n else None,
                 "skewness": _skewness(s),
             }
         )
@@ -426,6 +428,7 @@ def _measure_entry(
                     "group": groups[i],
                     "n": s.n,
                     "reason": f"no variation: all {s.n} values are {s.sorted[0]:g}",
+                    "value": _num(s.sorted[0]),
                 }
             )
         else:

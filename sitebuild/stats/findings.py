@@ -208,9 +208,11 @@ def measure_findings(entry: dict, settings) -> list[str]:
     """
     out: list[str] = []
     measure = entry["measure"]
+    decimals = measure_decimals(entry)
     for e in entry.get("not_comparable", []):
         out.append(
             f"Group '{e['group']}' is left out of the comparisons of '{measure}': {e['reason']}."
+            + _constant_placement(e, entry.get("groups", []), decimals)
         )
     if entry.get("lead_test") is None:
         out.insert(0, f"'{measure}' could not be compared between groups: {entry['reason']}.")
@@ -223,7 +225,6 @@ def measure_findings(entry: dict, settings) -> list[str]:
     # Ordering of groups by the summary the lead test works with.
     centre = entry.get("centre", "mean")
     rows = sorted(entry["groups"], key=lambda r: -(r[centre] or 0.0))
-    decimals = measure_decimals(entry)
     unit = measure_unit(measure)
     sds = {g["group"]: g.get("sd") for g in entry.get("groups", [])}
     named = ", ".join(
@@ -421,6 +422,36 @@ def _unequal_spread(entry: dict) -> bool:
     return entry.get("lead_test") == "Welch's ANOVA" and (
         "unequal spread" in reason or "largest standard deviation" in reason
     )
+
+
+def _constant_placement(excluded: dict, compared: list[dict], decimals: int | None) -> str:
+    """For a group left out because all its values are equal, say where that value lies
+    among the compared groups' values: the tests need variation, the reader still needs the
+    plain fact (a line with no defects at all, say)."""
+    value = excluded.get("value")
+    lows = [g["min"] for g in compared if g.get("min") is not None]
+    highs = [g["max"] for g in compared if g.get("max") is not None]
+    if value is None or not lows or not highs:
+        return ""
+    low, high = min(lows), max(highs)
+    shown = format_value(value, decimals)
+    others = "the other group" if len(compared) == 1 else "the compared groups"
+    if value < low:
+        where = f"below every value of {others} (lowest {format_value(low, decimals)})"
+    elif value > high:
+        where = f"above every value of {others} (highest {format_value(high, decimals)})"
+    else:
+        means = sorted(g["mean"] for g in compared if g.get("mean") is not None)
+        spread = (
+            f"; means {format_value(means[0], decimals)} to {format_value(means[-1], decimals)}"
+            if len(means) > 1
+            else (f"; mean {format_value(means[0], decimals)}" if means else "")
+        )
+        where = (
+            f"within the range of {others} ({format_value(low, decimals)} to "
+            f"{format_value(high, decimals)}{spread})"
+        )
+    return f" Its value, {shown}, lies {where}."
 
 
 def _count(n: int, one: str, many: str) -> str:
