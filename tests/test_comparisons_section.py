@@ -319,7 +319,7 @@ def test_large_groups_use_a_seeded_hodges_lehmann_sample():
     arrays = [rng.normal(10.5, 1, 20_000), rng.normal(10, 1.2, 15_000)]
     result = sec.compute(make_table(arrays), SiteSettings(), np.random.default_rng(1))
     pair = result["comparisons"][0]["pairs"][0]
-    assert "seeded random sample of 5,000 and 5,000" in pair["null_reasons"]["hl_sample"]
+    assert "seeded random sample of 2,000 and 2,000" in pair["null_reasons"]["hl_sample"]
     exact = hodges_lehmann(arrays[0], arrays[1]).estimate
     signed = exact if pair["a"] == "G0" else -exact
     assert pair["hl_ci_low"] <= signed <= pair["hl_ci_high"]
