@@ -170,13 +170,13 @@ def pvalue_matrix_chart(entry: dict, mi: int) -> Chart | None:
         return None
     alpha = entry.get("alpha", 0.05)
     cells = []
+    position = {g: i for i, g in enumerate(groups)}
     for p in entry["pairs"]:
         q = p.get("p_adjusted")
         text = "—" if q is None else ("<.001" if q < 0.001 else f"{q:.2g}")
-        for row, col in ((p["a"], p["b"]), (p["b"], p["a"])):
-            cells.append(
-                {"row": row, "col": col, "value": q, "band": _band(q, alpha), "text": text}
-            )
+        # One cell per pair, below the diagonal: the mirror image would only repeat it.
+        row, col = sorted((p["a"], p["b"]), key=lambda g: -position.get(g, 0))
+        cells.append({"row": row, "col": col, "value": q, "band": _band(q, alpha), "text": text})
     size = max(160, min(560, 34 * len(groups)))
     axis = {"labelLimit": 140}
     spec = {
@@ -216,7 +216,7 @@ def pvalue_matrix_chart(entry: dict, mi: int) -> Chart | None:
                 },
             },
             {
-                "mark": {"type": "text", "fontSize": 10},
+                "mark": {"type": "text", "fontSize": 11},
                 "encoding": {
                     "text": {"field": "text", "type": "nominal"},
                     "color": {
