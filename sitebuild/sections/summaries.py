@@ -198,7 +198,7 @@ def charts(ds: dict, settings: SiteSettings) -> list[Chart]:
                 description=(
                     f"Each group's mean of {measure} with its {level} confidence interval. "
                     "Overlap is not a test: two intervals can overlap while the groups differ; "
-                    "the comparisons below say which differ."
+                    "the comparisons below say which differ." + _extremes(rows)
                 ),
                 spec=draw.mean_intervals(rows, ds["groups"], measure),
                 table=f"sum-{mi}",
@@ -248,6 +248,25 @@ SHAPE_KEYS = (
     "skewness", "excess_kurtosis", "share_within_1sd", "share_within_2sd", "outliers",
     "normality_test", "normality_p",
 )  # fmt: skip
+
+
+def _extremes(rows: list[dict]) -> str:
+    """The highest and lowest group mean in words, so the chart's text alternative carries
+    its main content for readers who cannot see it."""
+    from ..stats.findings import format_value, measure_decimals
+
+    ranked = sorted(
+        (r for r in rows if r["group"] is not None and r["mean"] is not None),
+        key=lambda r: r["mean"],
+    )
+    if len(ranked) < 2:
+        return ""
+    decimals = measure_decimals({"groups": rows})
+    top, bottom = ranked[-1], ranked[0]
+    return (
+        f" Highest mean: {top['group']} ({format_value(top['mean'], decimals)}); lowest: "
+        f"{bottom['group']} ({format_value(bottom['mean'], decimals)})."
+    )
 
 
 def _engine_caption(ds: dict) -> str:
