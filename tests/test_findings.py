@@ -187,6 +187,7 @@ def test_differences_carry_the_unit_and_percentages_are_points():
     assert measure_unit("surface temp (°C)") == "°C"
     assert measure_unit("germinated (%)") == "percentage points"
     assert measure_unit("defects per panel") == ""
+    assert measure_unit("v.a[0]") == ""  # an index, not a unit
     entry = _entry([_pair("A", "B")])
     entry["measure"] = "germinated (%)"
     text = " ".join(measure_findings(entry, SiteSettings()))

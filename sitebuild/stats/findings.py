@@ -136,6 +136,8 @@ def measure_unit(measure: str) -> str:
     if not match:
         return ""
     unit = match.group(1)
+    if not re.search(r"[^\d\s.,+-]", unit):
+        return ""  # "value[0]" is an index, not a unit
     return "percentage points" if unit == "%" else unit
 
 
