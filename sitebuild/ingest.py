@@ -119,6 +119,24 @@ def natural_key(label: str):
     return [(0, int(p), p) if p.isdigit() else (1, 0, p.casefold()) for p in parts]
 
 
+def display_key(order: tuple[str, ...] = ()):
+    """Return the sort key for group labels: those in the manifest's ``order`` first, in that
+    order (early, late, night), then the rest by :func:`natural_key`.
+
+    Examples
+    --------
+    >>> sorted(["Night", "Line 10", "Early", "Line 2"], key=display_key(("Early", "Night")))
+    ['Early', 'Night', 'Line 2', 'Line 10']
+    """
+    position = {label: i for i, label in enumerate(order)}
+
+    def key(label: str):
+        at = position.get(label)
+        return (0, at, []) if at is not None else (1, 0, natural_key(label))
+
+    return key
+
+
 def _decode_head(path: Path, raw: bytes) -> tuple[str, str, list[str]]:
     """Return (encoding for pandas, decoded head, warnings)."""
     if b"\x00" in raw[:8192]:
@@ -238,11 +256,22 @@ def _label_text(uniques) -> list[str | None]:
     return [None if gone else str(t) for t, gone in zip(text.tolist(), missing, strict=True)]
 
 
-def group_codes(raw) -> tuple[np.ndarray, tuple[str, ...]]:
+def unordered_warnings(spec: DatasetSpec, groups: tuple[str, ...]) -> list[str]:
+    """One warning per group the manifest's ``order`` names but the data does not have."""
+    present = set(groups)
+    return [
+        f"order names '{label}', which is not a group in column '{spec.group}'; check the "
+        "spelling (labels are compared exactly)."
+        for label in spec.order
+        if label not in present
+    ]
+
+
+def group_codes(raw, order: tuple[str, ...] = ()) -> tuple[np.ndarray, tuple[str, ...]]:
     """Return (int32 code per row, -1 where the group is missing; labels in display order).
 
-    Labels are the exact text as written; display order is :func:`natural_key`, ties kept in
-    order of first appearance. The work per row is one hash factorisation; everything else
+    Labels are the exact text as written; display order is :func:`display_key` (the
+    manifest's ``order``, then natural order), ties kept in order of first appearance. The work per row is one hash factorisation; everything else
     touches only the distinct values.
     """
     import pandas as pd
@@ -256,7 +285,8 @@ def group_codes(raw) -> tuple[np.ndarray, tuple[str, ...]]:
         if label is not None:
             label_of[i] = first.setdefault(label, len(first))
     labels = list(first)
-    order = sorted(range(len(labels)), key=lambda i: natural_key(labels[i]))
+    key = display_key(order)
+    order = sorted(range(len(labels)), key=lambda i: key(labels[i]))
     rank = np.empty(len(labels) + 1, dtype=np.int32)
     rank[order] = np.arange(len(labels), dtype=np.int32)
     rank[-1] = -1
@@ -509,7 +539,7 @@ def read_table(
         return read_with_dask(spec, rng, sha256=sha256)
     frame, encoding, delimiter, warnings = read_frame(spec)
     rows_read = int(len(frame))
-    all_codes, groups = group_codes(frame[spec.group])
+    all_codes, groups = group_codes(frame[spec.group], spec.order)
     longest = max(groups, key=len, default="")
     if len(longest) > MAX_LABEL:
         raise SitebuildError(
@@ -536,6 +566,7 @@ def read_table(
     reasons = {"missing group label": dropped} if dropped else {}
     if rows_read == 0:
         warnings = [*warnings, f"{spec.file} has a header but no data rows."]
+    warnings = [*warnings, *unordered_warnings(spec, groups)]
     for name, count in missing.items():
         if len(codes) and count == len(codes):
             warnings = [*warnings, f"column '{name}' has no values (all {count:,} are missing)."]

@@ -37,6 +37,7 @@ DATASET_KEYS = {
     "x": "text",
     "notes": "text",
     "reference": "text",
+    "order": "list of text",
     "equivalence_margin": "table of numbers",
     "smooth_span": 'number or "auto"',
     "smooth_degree": "integer",
@@ -72,6 +73,7 @@ class DatasetSpec:
     notes: str | None = None
     notes_path: Path | None = None
     reference: str | None = None
+    order: tuple[str, ...] = ()  # groups shown first, in this order; the rest follow naturally
     equivalence_margin: dict[str, float] = field(default_factory=dict)
     smooth_span: float | str = 0.75
     smooth_degree: int = 1
@@ -94,6 +96,7 @@ class DatasetSpec:
             "x": self.x,
             "notes": self.notes,
             "reference": self.reference,
+            "order": list(self.order),
             "equivalence_margin": dict(sorted(self.equivalence_margin.items())),
             "smooth_span": self.smooth_span,
             "smooth_degree": self.smooth_degree,
@@ -386,6 +389,9 @@ def load_manifest(project: str | Path) -> Manifest:
                     "give a positive margin in the measure's units",
                     index,
                 )
+        order = tuple(entry.get("order", ()))
+        if len(set(order)) != len(order):
+            check.fail(label, "order", "lists a group twice", "list each group once", index)
         span = entry.get("smooth_span", 0.75)
         if span != "auto" and not 0 < span <= 1:
             check.fail(label, "smooth_span", f"is {span}", 'use a share in (0, 1] or "auto"', index)
@@ -411,6 +417,7 @@ def load_manifest(project: str | Path) -> Manifest:
             notes=notes,
             notes_path=notes_path,
             reference=entry.get("reference"),
+            order=order,
             equivalence_margin={k: float(v) for k, v in margins.items()},
             smooth_span=float(span) if span != "auto" else "auto",
             smooth_degree=degree,

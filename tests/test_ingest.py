@@ -159,3 +159,62 @@ def test_overlong_line_matches_the_csv_module(tmp_path, text):
             break
         start = reader.line_num + 1
     assert first_overlong_line(path, ",", 3) == expected
+
+
+@pytest.mark.parametrize("engine", ["memory", "stream"])
+def test_manifest_order_puts_named_groups_first(tmp_path, engine):
+    # Shifts in the order of the day, not the alphabet; unnamed groups follow in natural order.
+    import sitebuild
+
+    from conftest import write_project
+
+    text = "shift,v\n" + "".join(
+        f"{g},{i}\n" for i, g in enumerate(["Night", "Early", "Late", "Line 10", "Line 2"] * 3)
+    )
+    root = write_project(
+        tmp_path / "p",
+        """
+        [site]
+        title = "Order"
+        [[datasets]]
+        name = "Shifts"
+        file = "d.csv"
+        group = "shift"
+        measures = ["v"]
+        order = ["Early", "Late", "Night", "Weekend"]
+        engine = "ENGINE"
+        """.replace("ENGINE", engine),
+        {"d.csv": text},
+    )
+    report = sitebuild.build(root, out=tmp_path / "site", quiet=True)
+    import json
+
+    ds = json.loads((tmp_path / "site" / "results.json").read_text("utf-8"))["datasets"][0]
+    assert ds["groups"] == ["Early", "Late", "Night", "Line 2", "Line 10"]
+    warning = "order names 'Weekend', which is not a group in column 'shift'"
+    assert any(warning in w for w in ds["source"]["warnings"]), ds["source"]["warnings"]
+    assert report is not None
+
+
+def test_manifest_order_listing_a_group_twice_is_refused(tmp_path):
+    from sitebuild.errors import SitebuildError
+    from sitebuild.manifest import load_manifest
+
+    from conftest import write_project
+
+    root = write_project(
+        tmp_path / "p",
+        """
+        [site]
+        title = "Order"
+        [[datasets]]
+        name = "Shifts"
+        file = "d.csv"
+        group = "shift"
+        measures = ["v"]
+        order = ["Early", "Early"]
+        """,
+        {"d.csv": "shift,v\nEarly,1\n"},
+    )
+    with pytest.raises(SitebuildError, match="order.*lists a group twice"):
+        load_manifest(root)

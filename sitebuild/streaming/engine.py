@@ -34,7 +34,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from ..ingest import ColumnProblem, IngestReport, natural_key
+from ..ingest import ColumnProblem, IngestReport, display_key, unordered_warnings
 from ..stats.summary import SHAPIRO_LIMIT, Summary, dagostino_pearson, describe_sorted
 from .pieces import MOMENT_FIELDS, CoMoments, Extremes, Moments, Rows, Sample
 from .source import Batch, Source, batches
@@ -924,7 +924,8 @@ def read_streamed(spec, rng: np.random.Generator | None = None, runner: Runner |
     if isinstance(runner, LocalRunner) and runner.spill is not None:
         scan_source = runner.spill
     groups_count = len(state.labels)
-    order = sorted(range(groups_count), key=lambda i: natural_key(state.labels[i]))
+    key = display_key(spec.order)
+    order = sorted(range(groups_count), key=lambda i: key(state.labels[i]))
     new_code = np.empty(groups_count, dtype=np.int32)
     new_code[order] = np.arange(groups_count, dtype=np.int32)
     groups = tuple(state.labels[i] for i in order)
@@ -968,6 +969,7 @@ def read_streamed(spec, rng: np.random.Generator | None = None, runner: Runner |
     warnings = list(source.warnings)
     if state.rows_read == 0:
         warnings.append(f"{spec.file} has a header but no data rows.")
+    warnings.extend(unordered_warnings(spec, groups))
     for name in source.numeric:
         if rows_used and state.missing[name] == rows_used:
             warnings.append(f"column '{name}' has no values (all {rows_used:,} are missing).")
