@@ -294,6 +294,49 @@ def group_codes(raw, order: tuple[str, ...] = ()) -> tuple[np.ndarray, tuple[str
     return codes.astype(np.int32, copy=False), tuple(labels[i] for i in order)
 
 
+HEAD_BYTES = 65536  # bytes read to decode, sniff and find the header of a text file
+
+
+@dataclass(frozen=True)
+class Head:
+    """The start of a delimited text file: how to read it and its header."""
+
+    text: str  # the decoded first HEAD_BYTES bytes
+    whole: bool  # the text is the whole file
+    encoding: str
+    delimiter: str
+    header: list[str]
+    warnings: list[str]
+
+
+def read_head(spec: DatasetSpec, path: Path, suffix: str) -> Head:
+    """Decode the start of a text file, sniff its delimiter and check its header's columns
+    (shared by the in-memory reader and the stream engine)."""
+    with open(path, "rb") as handle:
+        head_bytes = handle.read(HEAD_BYTES)
+    encoding, text, warnings = _decode_head(path, head_bytes)
+    delimiter = sniff_delimiter(text, suffix)
+    first = text.splitlines()[0] if text.splitlines() else ""
+    header = next(csv.reader([first], delimiter=delimiter), [])
+    if not any(h.strip() for h in header):
+        raise SitebuildError(
+            f"{spec.file}: the first line is empty; the first line must name the columns."
+        )
+    _check_columns(spec, header)
+    return Head(text, len(head_bytes) < HEAD_BYTES, encoding, delimiter, header, warnings)
+
+
+def check_label_lengths(spec: DatasetSpec, groups: tuple[str, ...]) -> None:
+    """Refuse group labels longer than MAX_LABEL: every chart, table and CSV repeats them."""
+    longest = max(groups, key=len, default="")
+    if len(longest) > MAX_LABEL:
+        raise SitebuildError(
+            f"{spec.file}: a group label in column '{spec.group}' is {len(longest):,} characters "
+            f"long (it starts '{longest[:20]}'); group labels can be at most {MAX_LABEL} "
+            "characters — shorten them, or group by a shorter code column."
+        )
+
+
 def read_frame(spec: DatasetSpec):
     """Return (pandas DataFrame of the needed columns as read, encoding, delimiter, warnings)."""
     import pandas as pd
@@ -331,17 +374,9 @@ def read_frame(spec: DatasetSpec):
             f"{spec.file}: files ending '{suffix}' are not supported; use .csv, .tsv, .txt, "
             ".parquet or .jsonl."
         )
-    with open(path, "rb") as handle:
-        head_bytes = handle.read(65536)
-    encoding, head, warnings = _decode_head(path, head_bytes)
-    delimiter = sniff_delimiter(head, suffix)
-    first = head.splitlines()[0] if head.splitlines() else ""
-    header = next(csv.reader([first], delimiter=delimiter), [])
-    if not any(h.strip() for h in header):
-        raise SitebuildError(
-            f"{spec.file}: the first line is empty; the first line must name the columns."
-        )
-    _check_columns(spec, header)
+    head = read_head(spec, path, suffix)
+    encoding, delimiter, header = head.encoding, head.delimiter, head.header
+    warnings = head.warnings
     decimal_comma = delimiter == ";"
     positions = [header.index(c) for c in needed]
     # pandas drops the extra fields of a long row without a word when asked for some columns
@@ -350,7 +385,7 @@ def read_frame(spec: DatasetSpec):
     # would take as an index, or trim with index_col=False); that row is checked here.
     every_column = len(header) == len(set(positions)) == len(set(header))
     if every_column:
-        extra = _long_first_row(head, len(head_bytes) < 65536, delimiter, len(header))
+        extra = _long_first_row(head.text, head.whole, delimiter, len(header))
         every_column = extra != UNSURE
         if every_column and extra is not None:
             raise SitebuildError(
@@ -540,13 +575,7 @@ def read_table(
     frame, encoding, delimiter, warnings = read_frame(spec)
     rows_read = int(len(frame))
     all_codes, groups = group_codes(frame[spec.group], spec.order)
-    longest = max(groups, key=len, default="")
-    if len(longest) > MAX_LABEL:
-        raise SitebuildError(
-            f"{spec.file}: a group label in column '{spec.group}' is {len(longest):,} characters "
-            f"long (it starts '{longest[:20]}'); group labels can be at most {MAX_LABEL} "
-            "characters — shorten them, or group by a shorter code column."
-        )
+    check_label_lengths(spec, groups)
     has_group = all_codes >= 0
     every_row = bool(has_group.all())
 

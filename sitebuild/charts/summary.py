@@ -46,11 +46,12 @@ def mean_intervals(rows: list[dict], all_groups: list[str], measure: str) -> dic
     shown = [r["group"] for r in rows]
     colour = _group_colour(all_groups)
     y = _group_axis(shown)
+    fmt = value_format(rows)
     tooltip = [
         {"field": "group", "title": "Group"},
-        {"field": "mean", "title": "Mean", "format": value_format(rows)},
-        {"field": "low", "title": "CI low", "format": value_format(rows)},
-        {"field": "high", "title": "CI high", "format": value_format(rows)},
+        {"field": "mean", "title": "Mean", "format": fmt},
+        {"field": "low", "title": "CI low", "format": fmt},
+        {"field": "high", "title": "CI high", "format": fmt},
         {"field": "n", "title": "n"},
     ]
     return themed(

@@ -396,7 +396,12 @@ def _empty_entry(measure: str, reason: str, excluded: list[dict], group_rows: li
 
 
 def _measure_entry(
-    table, measure: str, settings, rng: np.random.Generator, perm_seed: int | None
+    table,
+    measure: str,
+    settings,
+    rng: np.random.Generator,
+    perm_seed: int | None,
+    balance: dict | None = None,
 ) -> dict:
     spec = table.spec
     groups = list(table.groups)
@@ -653,6 +658,8 @@ def _measure_entry(
         "exact_max_n": EXACT_MAX_N,
         "reason": None,
     }
+    if balance is not None:
+        entry["x_balance"] = balance  # the findings warn when the groups differ in x
     entry["findings"] = findings_mod.measure_findings(entry, settings)
     return entry
 
@@ -724,28 +731,21 @@ def compute(table, settings, rng: np.random.Generator, partial: dict | None = No
     # so large tables can run them on two threads (the work is numpy, which releases the GIL).
     children = rng.spawn(len(spec.measures))
     jobs = list(zip(spec.measures, children, strict=True))
+    balance = _x_balance(table, settings)
+
+    def entry_for(job) -> dict:
+        return _measure_entry(table, job[0], settings, job[1], perm_seed, balance)
+
     if table.n_rows >= PARALLEL_ROWS and len(jobs) > 1:
         from concurrent.futures import ThreadPoolExecutor
 
         with ThreadPoolExecutor(max_workers=2) as pool:
-            entries = list(
-                pool.map(
-                    lambda job: _measure_entry(table, job[0], settings, job[1], perm_seed), jobs
-                )
-            )
+            entries = list(pool.map(entry_for, jobs))
     else:
-        entries = [_measure_entry(table, m, settings, child, perm_seed) for m, child in jobs]
-    balance = _x_balance(table, settings)
+        entries = [entry_for(job) for job in jobs]
     if balance is not None:
         for entry in entries:
-            entry["x_balance"] = balance
-            if balance["differs"] and entry.get("lead_test") is not None:
-                # Just before the general cautions, which close every list of findings.
-                at = next(
-                    (i for i, t in enumerate(entry["findings"]) if t in findings_mod.CAUTIONS),
-                    len(entry["findings"]),
-                )
-                entry["findings"].insert(at, _x_balance_sentence(balance, entry["measure"]))
+            entry["x_balance"] = balance  # also on measures that could not be compared
     return {"comparisons": entries}
 
 
@@ -781,17 +781,6 @@ def _x_balance(table, settings) -> dict | None:
         "lowest": {"group": low, "mean": means[low]},
         "highest": {"group": high, "mean": means[high]},
     }
-
-
-def _x_balance_sentence(balance: dict, measure: str) -> str:
-    low, high = balance["lowest"], balance["highest"]
-    return (
-        f"The groups also differ in '{balance['x']}' ({balance['test']}, "
-        f"{findings_mod.p_phrase(balance['p'])}; mean {findings_mod.format_num(low['mean'])} in "
-        f"'{low['group']}' to {findings_mod.format_num(high['mean'])} in '{high['group']}'). If "
-        f"'{balance['x']}' affects '{measure}', part of these differences may come from "
-        f"'{balance['x']}' rather than from the groups themselves."
-    )
 
 
 def charts(dataset: dict, settings) -> list:

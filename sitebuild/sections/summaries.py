@@ -191,6 +191,7 @@ def charts(ds: dict, settings: SiteSettings) -> list[Chart]:
         shown = _shown_groups(ds, measure)
         rows = [r for r in ds["summaries"] if r["measure"] == measure and r["group"] in shown]
         dist = next(d for d in ds["distributions"] if d["measure"] == measure)
+        fmt = draw.value_format(rows)
         out.append(
             Chart(
                 id=f"sum-{mi}-means",
@@ -212,7 +213,7 @@ def charts(ds: dict, settings: SiteSettings) -> list[Chart]:
                     f"Histograms of {measure} per group on shared bins, as the share of each "
                     "group's values, so groups of different sizes compare fairly."
                 ),
-                spec=draw.histograms(dist, shown, ds["groups"], measure, draw.value_format(rows)),
+                spec=draw.histograms(dist, shown, ds["groups"], measure, fmt),
                 table=f"sum-{mi}",
             )
         )
@@ -226,7 +227,7 @@ def charts(ds: dict, settings: SiteSettings) -> list[Chart]:
                     f"and dots are values beyond (at most {MAX_OUTLIER_POINTS} of the most "
                     "extreme per side and group; the table counts them all)."
                 ),
-                spec=draw.boxes(dist, shown, ds["groups"], measure, draw.value_format(rows)),
+                spec=draw.boxes(dist, shown, ds["groups"], measure, fmt),
                 table=f"sum-{mi}",
             )
         )

@@ -377,9 +377,10 @@ def _scope_table(
             # pairs (instead of filtering and sampling a million rows once per pair).
             pick = np.sort(rng.choice(rows, size=kendall_limit, replace=False))
             sample = data[pick]
+            flat = [_flat(data[:, j]) for j in range(k)]
             for i in range(k):
                 for j in range(i + 1, k):
-                    if _flat(data[:, i]) or _flat(data[:, j]):
+                    if flat[i] or flat[j]:
                         result = kendall(data[:, i], data[:, j], level, kendall_limit, rng)
                     else:
                         result = kendall(sample[:, i], sample[:, j], level, kendall_limit, rng)

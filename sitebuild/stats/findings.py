@@ -409,8 +409,22 @@ def measure_findings(entry: dict, settings) -> list[str]:
             out.append(
                 f"{len(split) - MAX_LISTED} more pairs with disagreeing tests are in the table."
             )
+    balance = entry.get("x_balance")
+    if balance and balance["differs"]:
+        out.append(_x_balance_sentence(balance, measure))
     out.extend(CAUTIONS)
     return out
+
+
+def _x_balance_sentence(balance: dict, measure: str) -> str:
+    low, high = balance["lowest"], balance["highest"]
+    return (
+        f"The groups also differ in '{balance['x']}' ({balance['test']}, "
+        f"{p_phrase(balance['p'])}; mean {format_num(low['mean'])} in '{low['group']}' to "
+        f"{format_num(high['mean'])} in '{high['group']}'). If '{balance['x']}' affects "
+        f"'{measure}', part of these differences may come from '{balance['x']}' rather than "
+        "from the groups themselves."
+    )
 
 
 EQUAL_SPREAD_TEST = "one-way ANOVA"

@@ -34,7 +34,13 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from ..ingest import ColumnProblem, IngestReport, display_key, unordered_warnings
+from ..ingest import (
+    ColumnProblem,
+    IngestReport,
+    check_label_lengths,
+    display_key,
+    unordered_warnings,
+)
 from ..stats.summary import SHAPIRO_LIMIT, Summary, dagostino_pearson, describe_sorted
 from .pieces import MOMENT_FIELDS, CoMoments, Extremes, Moments, Rows, Sample
 from .source import Batch, Source, batches
@@ -955,17 +961,7 @@ def read_streamed(spec, rng: np.random.Generator | None = None, runner: Runner |
         if count
     }
     unparsed = {n: unparsed[n] for n in source.numeric if n in unparsed}
-    from ..ingest import MAX_LABEL
-
-    longest = max(groups, key=len, default="")
-    if len(longest) > MAX_LABEL:
-        from ..errors import SitebuildError
-
-        raise SitebuildError(
-            f"{spec.file}: a group label in column '{spec.group}' is {len(longest):,} characters "
-            f"long (it starts '{longest[:20]}'); group labels can be at most {MAX_LABEL} "
-            "characters — shorten them, or group by a shorter code column."
-        )
+    check_label_lengths(spec, groups)
     warnings = list(source.warnings)
     if state.rows_read == 0:
         warnings.append(f"{spec.file} has a header but no data rows.")

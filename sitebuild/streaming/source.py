@@ -24,10 +24,9 @@ from ..ingest import (
     TEXT_SUFFIXES,
     ColumnProblem,
     _check_columns,
-    _decode_head,
     _label_text,
     _to_numbers,
-    sniff_delimiter,
+    read_head,
 )
 from ..manifest import DatasetSpec
 
@@ -124,27 +123,17 @@ def open_source(spec: DatasetSpec) -> Source:
             file=spec.file,
             encoding="parquet",
         )
-    with open(path, "rb") as handle:
-        head_bytes = handle.read(65536)
-    encoding, head, warnings = _decode_head(path, head_bytes)
-    delimiter = sniff_delimiter(head, path.suffix.lower())
-    first = head.splitlines()[0] if head.splitlines() else ""
-    header = next(csv.reader([first], delimiter=delimiter), [])
-    if not any(h.strip() for h in header):
-        raise SitebuildError(
-            f"{spec.file}: the first line is empty; the first line must name the columns."
-        )
-    _check_columns(spec, header)
+    head = read_head(spec, path, path.suffix.lower())
     return Source(
         kind="csv",
         parts=(str(path),),
         group=spec.group,
         numeric=numeric,
         file=spec.file,
-        delimiter=delimiter,
-        encoding=encoding,
-        header=tuple(header),
-        warnings=tuple(warnings),
+        delimiter=head.delimiter,
+        encoding=head.encoding,
+        header=tuple(head.header),
+        warnings=tuple(head.warnings),
     )
 
 
