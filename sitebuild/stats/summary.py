@@ -94,7 +94,7 @@ def within_sd_bound(k: float, sd, mean):
 
     Examples
     --------
-    >>> within_sd_bound(1, 0.1, 1000000.2) > 0.1
+    >>> bool(within_sd_bound(1, 0.1, 1000000.2) > 0.1)
     True
     """
     eps = np.finfo(np.float64).eps
