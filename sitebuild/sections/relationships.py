@@ -117,8 +117,8 @@ def _correlations(table, names, settings, rng, chosen: list[int]) -> tuple[list[
                 )
                 if c.reason:
                     note += f"; {c.reason}"
-            elif c.r is not None and c.method == "kendall" and c.reason:
-                note = c.reason
+            elif c.r is not None and c.reason:
+                note = c.reason  # e.g. Kendall's tau-b or Spearman's rho = ±1
             elif c.r is not None and c.ci_low is None:
                 note = "the interval needs at least 4 pairs"
             if c.p is not None and c.ci_low is not None and c.ci_high is not None:
