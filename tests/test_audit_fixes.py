@@ -126,3 +126,31 @@ def test_the_stated_coverage_of_a_skewed_mean_interval(n, stated):
     coverage = float(np.mean((mean - half <= truth) & (truth <= mean + half)))
     assert abs(coverage - stated) <= 0.015
     assert f"{stated:.0%}" in SKEWED_MEAN_CAUTION and f"{n}" in SKEWED_MEAN_CAUTION
+
+
+def test_the_page_says_where_a_smooth_on_tied_x_became_a_local_mean():
+    # Source: statsmodels.datasets.fair (Fair 1978): affairs against educ (6 distinct values),
+    # span 0.5. The smooth's results and the scatter chart's text both say where and why the
+    # local line was replaced by a local mean (no silent change of method).
+    import dataclasses
+
+    import statsmodels.api as sm
+
+    from sitebuild.sections import relationships as rel
+    from tests.test_relationships_section import _table
+
+    data = sm.datasets.fair.load_pandas().data
+    table = _table(
+        {"educ": data["educ"].to_numpy(float), "affairs": data["affairs"].to_numpy(float)},
+        np.zeros(len(data), dtype=np.int32),
+        ["all"],
+        ["affairs"],
+        x="educ",
+    )
+    table = dataclasses.replace(table, spec=dataclasses.replace(table.spec, smooth_span=0.5))
+    out = rel.compute(table, SiteSettings(), np.random.default_rng(0), {})
+    smooth = next(s for s in out["smooths"] if s["group"] is None)
+    assert smooth["fallback"] and "local weighted mean" in smooth["fallback"]
+    assert smooth["fallback"] in smooth["note"]
+    described = " ".join(c.description for c in rel.charts(out, SiteSettings()))
+    assert smooth["fallback"] in described

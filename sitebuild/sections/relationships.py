@@ -274,6 +274,8 @@ def _smooth_entry(group, x_name, y_name, fit) -> dict:
     note = fit.reason
     if fit.binned and not note:
         note = "fitted on binned data (all rows used)"
+    if fit.fallback:
+        note = f"{note}; {fit.fallback}" if note else fit.fallback
     return {
         "group": group,
         "x": x_name,
@@ -288,6 +290,7 @@ def _smooth_entry(group, x_name, y_name, fit) -> dict:
         "lookup_df": _num(fit.lookup_df),
         "level": fit.level,
         "binned": bool(fit.binned),
+        "fallback": fit.fallback,  # where the local fit became a local mean or blank, and why
         "note": note,
         "points": points,
     }
@@ -502,6 +505,11 @@ def charts(dataset: dict, settings) -> list[Chart]:
                         "all rows"
                     )
                     + ", and the straight-line fit for all rows."
+                    + "".join(
+                        f" Smooth for {s['group'] or 'all rows'}: {s['fallback']}."
+                        for s in smooths
+                        if s.get("fallback")
+                    )
                 ),
                 spec=scatter_with_smooths(scatter, smooths, line, info["groups"]),
                 table="rel-lines",
