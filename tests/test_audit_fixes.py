@@ -154,3 +154,21 @@ def test_the_page_says_where_a_smooth_on_tied_x_became_a_local_mean():
     assert smooth["fallback"] in smooth["note"]
     described = " ".join(c.description for c in rel.charts(out, SiteSettings()))
     assert smooth["fallback"] in described
+
+
+def test_readme_states_the_group_limits_the_tool_applies():
+    # Reference: the tool's own constants (sections/relationships.py) against the README's
+    # "Limits" section: within-group smooths cover DRAWN_LIMIT groups, correlation tables
+    # GROUP_LIMIT (the README once said 30 for smooths while the tool drew 8).
+    from pathlib import Path
+
+    from sitebuild.sections import relationships as rel
+
+    readme = (Path(__file__).resolve().parents[1] / "README.md").read_text(encoding="utf-8")
+    text = " ".join(readme.split())
+    assert (
+        f"Within-group smooths and correlation heatmaps cover the {rel.DRAWN_LIMIT} largest groups"
+        in text
+    )
+    assert f"Within-group correlation tables cover the {rel.GROUP_LIMIT} largest groups" in text
+    assert "correlations and smooths cover the 30" not in text

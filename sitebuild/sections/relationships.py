@@ -21,9 +21,12 @@ SCATTER_LIMIT = 1_500  # points shipped per scatter chart (keeps a 1M-row site u
 SCATTER_BUDGET = 16_000  # points shipped over all scatter charts of a page (wide tables)
 WIDE_PAIRS = 45  # more column pairs than this (over 10 columns) makes a table "wide"
 PAIR_SMOOTH_LIMIT = 50_000  # rows used for the measure-against-measure curvature check
+# The two group limits of this section; README "Limits" quotes both (tests/test_audit_fixes.py
+# checks that it does).
 GROUP_LIMIT = 30  # within-group correlation tables for at most this many groups
 # Per-group smooths and heatmaps for at most this many (the largest) groups: the palette has 8
-# colours, and more curves on one scatter cannot be told apart anyway.
+# colours, and more curves on one scatter cannot be told apart anyway. This is the one place
+# the within-group smooth limit is set.
 DRAWN_LIMIT = 8
 METHOD_LABELS = {"pearson": "Pearson r", "spearman": "Spearman rho", "kendall": "Kendall tau-b"}
 
