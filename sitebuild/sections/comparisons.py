@@ -184,8 +184,9 @@ def residual_skew_check(samples: Sequence[Sample]) -> dict:
     out = {"residual_skewness": None, "skew_test_p": None, "skewed": False}
     if residuals.size < 8 or not np.ptp(residuals) > 0:
         return out
-    skew = _num(stats.skew(residuals, bias=False))
-    p = _num(stats.skewtest(residuals).pvalue)
+    with np.errstate(all="ignore"):  # cubes of values near 1e75 overflow: then None below
+        skew = _num(stats.skew(residuals, bias=False))
+        p = _num(stats.skewtest(residuals).pvalue)
     out.update(residual_skewness=skew, skew_test_p=p)
     out["skewed"] = bool(
         skew is not None and abs(skew) > SKEW_LIMIT and p is not None and p < SKEW_TEST_ALPHA
