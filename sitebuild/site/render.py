@@ -146,8 +146,8 @@ def sanitise_notes(text: str) -> str:
     import nh3
 
     html = markdown.markdown(text, extensions=["tables", "sane_lists"], output_format="html")
-    # Notes sit under the page's own title: demote their headings two levels (h1 -> h3).
-    html = re.sub(r"<(/?)h([1-6])\b", lambda m: f"<{m[1]}h{min(6, int(m[2]) + 2)}", html)
+    # Notes sit under the page's own title: demote their headings one level (h1 -> h2).
+    html = re.sub(r"<(/?)h([1-6])\b", lambda m: f"<{m[1]}h{min(6, int(m[2]) + 1)}", html)
     return nh3.clean(
         html,
         tags=NOTE_TAGS,
@@ -261,9 +261,30 @@ def dataset_page(env, common: dict, ds: dict, spec) -> tuple[dict, dict]:
     notes_html = None
     if spec.notes_path is not None:
         notes_html = sanitise_notes(spec.notes_path.read_text(encoding="utf-8", errors="replace"))
+    from ..charts.bottom_line import group_dots
+    from . import bottom_line as bl
+    from .together import together_sentences
+
+    rows = bl.bottom_line(ds)
+    settings = common["site"]
+    for row in rows:
+        mini = group_dots(
+            row.points,
+            ds["groups"],
+            row.measure,
+            row.centre,
+            settings.confidence,
+            f"bl-{row.anchor}",
+        )
+        charts[mini.id] = mini
     context = {
         **common,
         "ds": ds,
+        "bottom": rows,
+        "cautions": bl.cautions(ds, settings),
+        "data_use": bl.data_use(ds),
+        "specific": {c["measure"]: bl.specific_findings(c) for c in ds.get("comparisons", [])},
+        "together": together_sentences(ds, settings.alpha),
         "charts": charts,
         "tables": tables,
         "notes_html": notes_html,
@@ -368,7 +389,7 @@ def render_site(
         .render(**common, current="index.html", chart_specs={}, changes_summary=summary)
         .encode("utf-8")
     )
-    for asset in ("style.css", "site.js"):
+    for asset in ("style.css", "site.js", "tables.js"):
         files[f"assets/{asset}"] = asset_bytes(manifest, asset)
     files[ASSET_BUNDLE] = bundle if bundle is not None else chart_bundle()
     files["results.json"] = (dumps(results) + "\n").encode("utf-8")

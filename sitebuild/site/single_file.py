@@ -135,6 +135,7 @@ def render_single(
 
     bundle_text = script_text(files[render.ASSET_BUNDLE].decode("utf-8"))
     site_js = script_text(files["assets/site.js"].decode("utf-8"))
+    tables_js = script_text(files["assets/tables.js"].decode("utf-8"))
     page = env.get_template("single.html").render(
         **{
             **common,
@@ -147,6 +148,7 @@ def render_single(
         chart_specs=chart_specs,
         bundle=Markup(bundle_text),
         site_js=Markup(site_js),
-        script_hashes=" ".join((csp_hash(bundle_text), csp_hash(site_js))),
+        tables_js=Markup(tables_js),
+        script_hashes=" ".join((csp_hash(bundle_text), csp_hash(site_js), csp_hash(tables_js))),
     )
     return page.encode("utf-8")
