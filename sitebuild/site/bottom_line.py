@@ -18,6 +18,12 @@ MATERIAL_LOSS = 0.05
 # Groups this small get a caution: intervals are wide and single values move them (common
 # practice; the tests still apply).
 SMALL_GROUP = 20
+# Cautions the overview page states once for the whole site (the others name a dataset's
+# counts or groups and stay on its page).
+SITE_CAUTIONS = ("observational", "not-same", "decision")
+CAUTION_ORDER = (
+    "observational", "not-same", "many-tests", "small-groups", "data-left-out", "decision",
+)  # fmt: skip
 # The mini chart shows at most this many groups: the highest and lowest halves.
 MINI_MAX_GROUPS = 12
 

@@ -336,6 +336,35 @@ def common_context(results: dict, manifest: Manifest) -> dict:
     }
 
 
+def overview_context(results: dict, settings) -> dict:
+    """Return what the overview page needs beyond the common context: each dataset's
+    bottom-line rows and data-use line, and the cautions that apply to the site as a whole."""
+    from . import bottom_line as bl
+
+    overview, uses, seen, site_cautions = {}, {}, set(), []
+    for ds in results["datasets"]:
+        overview[ds["slug"]] = bl.bottom_line(ds)
+        uses[ds["slug"]] = bl.data_use(ds)
+        for caution in bl.cautions(ds, settings):
+            # Counts and group names belong to a dataset's page; the overview keeps the
+            # general cautions, each once.
+            if caution.key not in seen and caution.key in bl.SITE_CAUTIONS:
+                seen.add(caution.key)
+                site_cautions.append(caution)
+            elif caution.key == "many-tests" and caution.key not in seen:
+                seen.add(caution.key)
+                site_cautions.append(
+                    bl.Caution(
+                        caution.key,
+                        "Each page runs many tests, so a few results may flag by chance; p-values "
+                        "are adjusted within each stated family, not across the site.",
+                    )
+                )
+    order = {key: i for i, key in enumerate(bl.CAUTION_ORDER)}
+    site_cautions.sort(key=lambda c: order.get(c.key, len(order)))
+    return {"overview": overview, "uses": uses, "site_cautions": site_cautions}
+
+
 def render_site(
     results: dict,
     manifest: Manifest,
@@ -386,7 +415,13 @@ def render_site(
     summary = changes["summary"] if changes else None
     files["index.html"] = (
         env.get_template("index.html")
-        .render(**common, current="index.html", chart_specs={}, changes_summary=summary)
+        .render(
+            **common,
+            **overview_context(results, manifest.site),
+            current="index.html",
+            chart_specs={},
+            changes_summary=summary,
+        )
         .encode("utf-8")
     )
     for asset in ("style.css", "site.js", "tables.js"):

@@ -109,6 +109,7 @@ def render_single(
         "current": "index.html",
         "chart_specs": {},
         "changes_summary": changes["summary"] if changes else None,
+        **render.overview_context(results, common["site"]),
     }
     index_html = _main_block(env, "index.html", index_context)
     sections.append((anchors["index.html"][0], _rewrite(index_html, "o--", anchors, files)))
