@@ -45,7 +45,9 @@ def _num(value, decimals: int | None = None, digits: int = 4) -> str:
     if not math.isfinite(value):
         return "—"
     if decimals is not None and abs(value) < 1e15:
-        return f"{value:,.{decimals}f}"
+        text = f"{value:,.{decimals}f}"
+        # A tiny negative rounds to "-0.00": zero has no sign on a page.
+        return text[1:] if text.startswith("-") and not text.strip("-0.,") else text
     if value == 0:
         return "0"
     magnitude = math.floor(math.log10(abs(value)))
@@ -237,6 +239,23 @@ def build_time() -> str | None:
     return moment.strftime("%Y-%m-%d %H:%M UTC")
 
 
+def data_time(manifest: Manifest) -> str | None:
+    """Return the date to put on a build when SOURCE_DATE_EPOCH is not set: the newest
+    modification time of the data files read, so rebuilding the same files gives the same
+    date (a reproducible build) and the date says how recent the data are."""
+    import datetime
+
+    times = []
+    for spec in manifest.datasets:
+        path = Path(spec.path)
+        candidates = [path] if path.is_file() else sorted(path.rglob("*")) if path.is_dir() else []
+        times += [p.stat().st_mtime for p in candidates if p.is_file()]
+    if not times:
+        return None
+    moment = datetime.datetime.fromtimestamp(int(max(times)), tz=datetime.UTC)
+    return "data of " + moment.strftime("%Y-%m-%d %H:%M UTC")
+
+
 def page_parts(ds: dict, settings) -> tuple[dict, dict]:
     """Return (charts by id, tables by id) for one dataset from every section."""
     from ..pipeline import section_modules
@@ -302,6 +321,7 @@ def history_tables(history: list[dict]) -> list[dict]:
             if d["name"] not in names:
                 names.append(d["name"])
     builds = [entry["build"] for entry in history]
+    dates = [entry.get("built_at") for entry in history]
     out = []
     for name in names:
         per_build = [next((d for d in e["datasets"] if d["name"] == name), None) for e in history]
@@ -321,7 +341,7 @@ def history_tables(history: list[dict]) -> list[dict]:
                 ]
                 values.append(found[0] if found else None)
             rows.append((f"Mean {measure}, {group}", values))
-        out.append({"name": name, "builds": builds, "rows": rows})
+        out.append({"name": name, "builds": builds, "dates": dates, "rows": rows})
     return out
 
 
@@ -403,7 +423,11 @@ def render_site(
             "changes.html",
             (
                 "changes.html",
-                {"changes": changes, "history": history_tables(results.get("history", []))},
+                {
+                    "changes": changes,
+                    "history": history_tables(results.get("history", [])),
+                    "dates": [entry.get("built_at") for entry in results.get("history", [])],
+                },
             ),
         )
     for name, (template, context) in pages.items():

@@ -126,6 +126,7 @@ def render_single(
             "chart_specs": {},
             "changes": changes,
             "history": render.history_tables(results.get("history", [])),
+            "dates": [entry.get("built_at") for entry in results.get("history", [])],
         }
         html = _main_block(env, "changes.html", context)
         sections.append((anchors["changes.html"][0], _rewrite(html, "c--", anchors, files)))
