@@ -10,7 +10,13 @@ from __future__ import annotations
 import math
 from dataclasses import dataclass
 
-from ..stats.findings import CAUTIONS, format_p, format_value, measure_decimals, measure_unit
+from ..stats.findings import (
+    CAUTIONS,
+    format_value,
+    measure_decimals,
+    measure_unit,
+    p_phrase,
+)
 
 # Below this share of rows used, the data-use line is shown as a warning (common practice:
 # losing more than about one row in twenty can bias a comparison).
@@ -179,6 +185,7 @@ def bottom_line_row(ds: dict, entry: dict, index: int) -> BottomLineRow:
     ranked = [g for g in entry.get("groups", []) if g.get(centre) is not None]
     ranked.sort(key=lambda g: -g[centre])
     reference = entry.get("reference")
+    top_group, bottom_group = (ranked[0], ranked[-1]) if ranked else (None, None)
     if reference is not None and any(g["group"] == reference for g in ranked):
         # Each group was compared with the reference only: the gap that matters is the
         # largest one from the reference, and the percentage is of the reference.
@@ -186,14 +193,14 @@ def bottom_line_row(ds: dict, entry: dict, index: int) -> BottomLineRow:
         others = [g for g in ranked if g["group"] != reference] or [base]
         far = max(others, key=lambda g: abs(g[centre] - base[centre]))
         high, low = (far, base) if far[centre] >= base[centre] else (base, far)
-        baseline = base
+        baseline, other = base, far
     else:
-        high, low = (ranked[0], ranked[-1]) if ranked else (None, None)
-        baseline = low
+        high, low = top_group, bottom_group
+        baseline, other = low, high
     if better == "lower":
-        best, worst = low, high
+        best, worst = bottom_group, top_group
     else:
-        best, worst = high, low
+        best, worst = top_group, bottom_group
     gap = (high[centre] - low[centre]) if high and low else None
     pair = _pair(entry, high["group"], low["group"]) if high and low and high is not low else None
     p_adj = pair.get("p_adjusted") if pair else (lead.get("p") if lead else None)
@@ -203,26 +210,33 @@ def bottom_line_row(ds: dict, entry: dict, index: int) -> BottomLineRow:
         sure, level = "Practically the same", "good"
     how = "by " + centre
     sure_note = (
-        f"{high['group']} against {low['group']}: adjusted p {format_p(p_adj)}"
+        f"{high['group']} against {low['group']}: adjusted {p_phrase(p_adj)}"
         if pair
-        else (f"main test p {format_p(p_adj)}" if p_adj is not None else "no test")
+        else (f"main test {p_phrase(p_adj)}" if p_adj is not None else "no test")
     )
     if borderline:
         sure_note += "; the tests disagree"
     gap_text, gap_parts = "—", None
     if gap is not None:
         amount = _with_unit(format_value(gap, decimals), gap_unit)
-        relative = ""
-        base_value = baseline[centre] if baseline else None
-        if base_value is not None and base_value > 0 and gap_unit != "percentage points":
-            share = 100 * gap / base_value
-            direction = "above" if baseline is low else "below"
-            relative = f"{share:.0f} % {direction} {baseline['group']}"
-        elif reference is not None and baseline is not None:
-            relative = f"from {baseline['group']}"
+        side = "above" if other is high else "below"
+        if other is baseline:
+            relative = ""
+        elif reference is not None:
+            relative = f"{other['group']} {side} {baseline['group']}"
+        else:
+            relative = f"{other['group']} {side} {baseline['group']}"
+        base_value = baseline[centre]
+        if (
+            relative
+            and base_value is not None
+            and base_value > 0
+            and gap_unit != "percentage points"
+        ):
+            relative += f" by {100 * gap / base_value:.0f} %"
         gap_parts = (amount, relative)
         gap_text = f"{amount} ({relative})" if relative else amount
-    sure_short = f"adjusted p {format_p(p_adj)}" if p_adj is not None else ""
+    sure_short = f"adjusted {p_phrase(p_adj)}" if p_adj is not None else ""
     x_note = None
     balance = entry.get("x_balance")
     if balance and balance.get("differs"):
