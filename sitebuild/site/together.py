@@ -8,7 +8,7 @@ from __future__ import annotations
 
 from dataclasses import dataclass
 
-from ..stats.findings import format_p
+from ..stats.findings import p_phrase
 
 # Size words for |r| (Cohen 1988's 0.1 / 0.3 / 0.5; common practice).
 STRENGTH = ((0.5, "strongly"), (0.3, "moderately"), (0.1, "weakly"))
@@ -78,7 +78,7 @@ def together_sentences(ds: dict, alpha: float) -> list[TogetherSentence]:
         )
         rank = spearman.get((a, b))
         extra = f", rank correlation {rank['r']:.2f}" if rank and rank.get("r") is not None else ""
-        text = f"{a} and {b} {_strength(r)} {how} (r = {r:.2f}{extra}; adjusted p {format_p(p)})."
+        text = f"{a} and {b} {_strength(r)} {how} (r = {r:.2f}{extra}; adjusted {p_phrase(p)})."
         out.append(TogetherSentence(a, b, r, True, False, text))
     out = out[:MAX_SENTENCES]
     if unclear:
