@@ -122,6 +122,24 @@ class Timer:
             self.stages[name] = self.stages.get(name, 0.0) + time.perf_counter() - start
 
 
+@contextmanager
+def one_blas_thread():
+    """Run the block with the BLAS library (behind numpy's dot and matrix products) on one thread.
+
+    Why: a threaded BLAS splits a long dot product between its threads, so the rounding of
+    every sum of squares depended on how many cores the machine had (results.json differed
+    in the last digits between machines), and its spinning threads fought the analysis
+    threads for the cores: a 125,000-value dot took 30 times longer on a busy 2-core machine.
+    """
+    # The limit applies to the BLAS libraries already loaded: numpy's, and scipy's own.
+    import numpy  # noqa: F401
+    import scipy.linalg  # noqa: F401
+    from threadpoolctl import threadpool_limits
+
+    with threadpool_limits(limits=1, user_api="blas"):
+        yield
+
+
 def section_modules() -> list:
     """Return the section modules in page order."""
     return [importlib.import_module(f"sitebuild.sections.{name}") for name in SECTION_NAMES]
@@ -470,7 +488,7 @@ def build(
             f"{target.parent}: cannot create the folder ({exc.strerror}); choose another --out."
         ) from None
     notices: list[str] = []
-    with publish.Lock(target):
+    with publish.Lock(target), one_blas_thread():
         datasets, reports, checksums = [], [], []
         for spec in manifest.datasets:
             with timer.stage("cache"):
