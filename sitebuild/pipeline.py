@@ -562,7 +562,10 @@ def build(
 
                 if say:
                     say("rendering pages")
-                bundle = cache.chart_bundle(render.chart_bundle)
+                from .site.chart_script import chart_script
+
+                # Made once per user and installed version, not per project or build.
+                bundle = chart_script(render.chart_bundle)
                 memo = PageMemo(cache, manifest, results, checksums)
                 files = render.render_site(results, manifest, bundle=bundle, pages=memo)
                 if say and memo.reused:
