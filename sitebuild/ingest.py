@@ -104,7 +104,9 @@ class Table:
             keep = ~np.isnan(values)
             codes = self.codes[keep]
             kept = values[keep]
-            order = np.argsort(codes, kind="stable")
+            # Small codes as int16 sort by radix (linear); a stable sort gives the same order.
+            narrow = codes.astype(np.int16) if len(self.groups) < 32_000 else codes
+            order = np.argsort(narrow, kind="stable")
             bounds = np.searchsorted(codes[order], np.arange(len(self.groups) + 1))
             sorted_values = kept[order]
             self._cache[key] = [

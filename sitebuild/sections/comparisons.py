@@ -115,11 +115,11 @@ def _group_rows(groups: Sequence[str], samples: Sequence[Sample]) -> list[dict]:
     return rows
 
 
-def _omnibus(samples: list[Sample], ranks: list[np.ndarray]) -> tuple[list[dict], dict]:
+def _omnibus(samples: list[Sample], shared: SharedRanks) -> tuple[list[dict], dict]:
     arrays = [s.sorted for s in samples]
     anova = one_way_anova(arrays)
     welch = welch_anova(arrays)
-    kw = kruskal_wallis(arrays, ranks=ranks)
+    kw = kruskal_wallis(arrays, ranks=shared.ranks, runs=shared.runs)
     spread = spread_test(arrays, center="median")
     rows = [
         {
@@ -431,7 +431,7 @@ def _measure_entry(
     # One pooled sort per measure gives the mid-ranks (Kruskal–Wallis reuses them), and every
     # pair's dominance counts and tie term as lookups (Mann–Whitney, Cliff's delta, the shift).
     shared = SharedRanks.of(samples)
-    omnibus, spread_row = _omnibus(samples, shared.ranks)
+    omnibus, spread_row = _omnibus(samples, shared)
     lead, lead_reason = _choose_lead(group_rows, spread_row, settings.alpha)
     rank_lead = lead == TEST_KW
 
