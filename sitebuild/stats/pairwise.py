@@ -171,16 +171,20 @@ class SharedRanks:
         bounds = np.cumsum([0] + [s.n for s in samples])
         order = np.argsort(pooled, kind="stable")
         ordered = pooled[order]
+        del pooled  # (temporaries are let go early: at 10M rows each is 80 MB)
         new_value = np.empty(size, dtype=bool)
         new_value[:1] = True
         np.not_equal(ordered[1:], ordered[:-1], out=new_value[1:])
+        del ordered
         starts = np.flatnonzero(new_value)
         runs = np.diff(np.append(starts, size))
         code_sorted = np.cumsum(new_value, dtype=np.int64) - 1
+        del new_value
         codes = np.empty(size, dtype=np.int64)
         codes[order] = code_sorted
         ranks = np.empty(size, dtype=np.float64)
         ranks[order] = ((2 * starts + runs + 1) / 2.0)[code_sorted]
+        del order, code_sorted
         distinct = starts.size
         tied_codes = np.flatnonzero(runs > 1)
         count_type = np.int32 if size < 2**31 else np.int64
