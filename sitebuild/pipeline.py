@@ -488,7 +488,7 @@ def build(
             f"{target.parent}: cannot create the folder ({exc.strerror}); choose another --out."
         ) from None
     notices: list[str] = []
-    with publish.Lock(target), one_blas_thread():
+    with publish.Lock(target):
         datasets, reports, checksums = [], [], []
         for spec in manifest.datasets:
             with timer.stage("cache"):
@@ -508,13 +508,14 @@ def build(
 
             if say:
                 say(f"{spec.name}: reading {spec.file}")
-            with timer.stage("read"):
-                table = read_table(
-                    spec, rng=dataset_rng(manifest.site.seed, spec.name, 99), sha256=sha
-                )
-            if say:
-                say(f"{spec.name}: {table.report.rows_used:,} rows ready")
-            ds = clean(analyse(table, manifest, timer, say))
+            with one_blas_thread():
+                with timer.stage("read"):
+                    table = read_table(
+                        spec, rng=dataset_rng(manifest.site.seed, spec.name, 99), sha256=sha
+                    )
+                if say:
+                    say(f"{spec.name}: {table.report.rows_used:,} rows ready")
+                ds = clean(analyse(table, manifest, timer, say))
             stopping.check()  # a stop whose KeyboardInterrupt a library swallowed
             # Through JSON and back, so fresh and cached results are the very same data.
             ds = json.loads(canonical(ds))
