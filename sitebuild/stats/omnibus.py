@@ -58,8 +58,9 @@ def group_moments(values: np.ndarray) -> GroupMoments:
     return GroupMoments(n, mean, float(np.dot(dev, dev)))
 
 
-def _moments(groups: Sequence[np.ndarray]) -> list[GroupMoments]:
-    moments = [group_moments(g) for g in groups]
+def _moments(groups: Sequence[np.ndarray | GroupMoments]) -> list[GroupMoments]:
+    # Moments given as such (streamed data, stats.from_moments) are used as they are.
+    moments = [g if isinstance(g, GroupMoments) else group_moments(g) for g in groups]
     if len(moments) < 2:
         raise ValueError("need at least two groups")
     if any(m.n < 1 for m in moments):
