@@ -559,8 +559,30 @@ class Streamed:
 
     def pearson(self, a: str, b: str) -> np.ndarray:
         """Return Pearson's r of columns a and b per group, from exact co-moments."""
-        key = (a, b) if (a, b) in self.comoments else (b, a)
-        return self.comoments[key].pearson()
+        return self.pair_moments(a, b).pearson()[:-1]
+
+    def pair_moments(self, a: str, b: str) -> CoMoments:
+        """Return the exact co-moments of columns a and b (in that role) per group, then all
+        rows as one more entry."""
+        if (a, b) in self.comoments:
+            return self.comoments[(a, b)].with_total()
+        return self.comoments[(b, a)].swapped().with_total()
+
+    def group_moments(self, name: str) -> list[tuple[int, float, float]]:
+        """Return (n, mean, variance) of column ``name`` per group in display order, exact
+        over every row (variance NaN below 2 values)."""
+        m = self.moments[name]
+        n = m.n.astype(np.int64)
+        with np.errstate(invalid="ignore", divide="ignore"):
+            variance = np.where(n > 1, m.m2 / np.maximum(n - 1, 1), np.nan)
+        return list(zip(n.tolist(), m.means.tolist(), variance.tolist(), strict=True))
+
+    def flat(self, name: str) -> np.ndarray:
+        """Return per group, then all rows, whether column ``name`` holds one value only."""
+        m = self.moments[name]
+        low = np.append(m.low, m.low.min(initial=np.inf))
+        high = np.append(m.high, m.high.max(initial=-np.inf))
+        return low == high
 
     def measures(self, names, level: float) -> dict[str, MeasurePieces]:
         """Return the :class:`MeasurePieces` of each measure (passes over the data run once)."""
