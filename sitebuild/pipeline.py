@@ -8,7 +8,6 @@ from __future__ import annotations
 
 import dataclasses
 import hashlib
-import importlib
 import json
 import os
 import sys
@@ -30,7 +29,7 @@ from .cache import (
 )
 from .errors import SitebuildError
 from .manifest import Manifest, load_manifest
-from .sections import PARALLEL_ROWS, SECTION_NAMES
+from .sections import PARALLEL_ROWS, section_modules
 
 
 @dataclass(frozen=True)
@@ -120,11 +119,6 @@ class Timer:
             yield
         finally:
             self.stages[name] = self.stages.get(name, 0.0) + time.perf_counter() - start
-
-
-def section_modules() -> list:
-    """Return the section modules in page order."""
-    return [importlib.import_module(f"sitebuild.sections.{name}") for name in SECTION_NAMES]
 
 
 def dataset_rng(seed: int, dataset: str, section: int):
@@ -245,7 +239,7 @@ def resolve_out(manifest: Manifest, out: str | Path | None) -> Path:
 
 def check(project: str | Path, out: str | Path | None = None) -> CheckReport:
     """Validate the manifest and read every dataset; write nothing."""
-    from .ingest import read_table
+    from .engines import read_table
     from .site.publish import check_target
 
     manifest = load_manifest(project)
@@ -485,7 +479,7 @@ def build(
                 if say:
                     say(f"{spec.name}: unchanged, results reused")
                 continue
-            from .ingest import read_table
+            from .engines import read_table
             from .results import clean
 
             if say:
@@ -523,7 +517,9 @@ def build(
         else:
             changes = compare(previous and core(previous), computed)
             history = extend_history(previous, computed, manifest.site.history, build_time())
-        results = {**computed, "changes": changes, "history": history}
+        from .results import stamped
+
+        results = stamped({**computed, "changes": changes, "history": history})
         if numbers_changed:
             report_changes = tuple(changes["summary"])
         else:

@@ -18,7 +18,7 @@ import numpy as np
 import pandas as pd
 import pytest
 
-from sitebuild.ingest import read_table
+from sitebuild.engines import read_table
 from sitebuild.manifest import DatasetSpec, Manifest, SiteSettings
 from sitebuild.pipeline import Timer, analyse
 from sitebuild.results import clean

@@ -14,6 +14,7 @@ A section module provides:
 
 from __future__ import annotations
 
+import importlib
 from dataclasses import dataclass
 
 SECTION_NAMES = ("summaries", "relationships", "comparisons")
@@ -21,6 +22,12 @@ MAX_CHART_GROUPS = 30  # groups drawn in distribution charts; tables keep every 
 # From this many rows the analysis uses two threads (below it, threads cost more than they
 # save); the heavy work is numpy sorting and searching, which releases the GIL.
 PARALLEL_ROWS = 200_000
+
+
+def section_modules() -> list:
+    """Return the section modules in page order (the build computes with them, the renderer
+    draws with them)."""
+    return [importlib.import_module(f"{__name__}.{name}") for name in SECTION_NAMES]
 
 
 @dataclass(frozen=True)
