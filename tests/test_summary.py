@@ -141,3 +141,18 @@ def test_histogram_edges_are_bounded():
     edges = histogram_edges(np.random.default_rng(1).normal(size=100_000))
     assert 5 <= len(edges) - 1 <= 40
     assert len(histogram_edges(np.array([1.0, 1.0]))) == 2
+
+
+@pytest.mark.parametrize("name", SAMPLES)
+def test_midrange_matches_numpy(name):
+    # Reference: (numpy.min + numpy.max) / 2 on the same values.
+    x = SAMPLES[name]
+    assert describe(x).midrange == pytest.approx((np.min(x) + np.max(x)) / 2, rel=1e-15)
+
+
+def test_midrange_near_the_largest_double_does_not_overflow():
+    # Reference: exact rational arithmetic ((a + b) / 2 in float64 overflows to inf here).
+    x = np.array([1.7e308, 1.79e308, 1.6e308])
+    exact = (Fraction(1.6e308) + Fraction(1.79e308)) / 2
+    assert describe(x).midrange == float(exact)
+    assert describe(np.array([])).midrange is None

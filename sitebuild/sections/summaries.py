@@ -13,7 +13,7 @@ MAX_OUTLIER_POINTS = 20  # per side per group: the most extreme values, enough t
 
 SUMMARY_FIELDS = (
     "n", "missing", "mean", "sd", "se", "ci_low", "ci_high", "median", "median_ci_low",
-    "median_ci_high", "q1", "q3", "iqr", "min", "max", "skewness", "excess_kurtosis",
+    "median_ci_high", "q1", "q3", "iqr", "min", "max", "midrange", "skewness", "excess_kurtosis",
     "share_within_1sd", "share_within_2sd", "outliers", "normality_test", "normality_p",
 )  # fmt: skip
 
