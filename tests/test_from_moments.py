@@ -163,3 +163,14 @@ def test_flat_groups_are_named_not_divided_by_zero():
     )
     assert fm.straight_line_from_stats(10, 1.0, 2.0, 0.0, 3.0, 0.0).reason == "x has no variation"
     assert fm.is_flat(0.0) and fm.is_flat(float("nan")) and not fm.is_flat(1e-300)
+
+
+def test_brown_forsythe_from_stats_matches_scipy_levene_median():
+    # Reference: scipy.stats.levene(center="median") (the Brown–Forsythe test) on the values;
+    # ours gets only the moments of each group's |x − median|.
+    groups = _groups()
+    deviations = [np.abs(g - np.median(g)) for g in groups]
+    got = fm.brown_forsythe_from_stats(*_stats(deviations))
+    ref = stats.levene(*groups, center="median")
+    assert got.statistic == pytest.approx(ref.statistic, rel=1e-9)
+    assert got.pvalue == pytest.approx(ref.pvalue, rel=1e-8)

@@ -30,6 +30,19 @@ def section_modules() -> list:
     return [importlib.import_module(f"{__name__}.{name}") for name in SECTION_NAMES]
 
 
+def sampled_caption(dataset: dict, what: str) -> str:
+    """Return a sentence saying that ``what`` used the seeded row sample (streamed data only;
+    an empty string when every row was in memory)."""
+    source = dataset.get("computed_from") or {}
+    if source.get("sample_rows") is None:
+        return ""
+    return (
+        f" On this {source['engine']}-read dataset, {what} used a seeded sample of "
+        f"{source['sample_rows']:,} rows (at most {source['sample_per_group']:,} per group); "
+        "every other number here uses all rows."
+    )
+
+
 @dataclass(frozen=True)
 class Chart:
     """One chart on a page: a Vega-Lite spec and its text alternative."""

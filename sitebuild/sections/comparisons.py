@@ -32,7 +32,7 @@ import numpy as np
 from scipy import stats
 
 from ..stats import findings as findings_mod
-from ..stats.from_moments import moment_sample
+from ..stats.from_moments import brown_forsythe_from_stats, moment_sample
 from ..stats.letters import compact_letters
 from ..stats.multiplicity import METHOD_NAMES, adjust_pvalues
 from ..stats.omnibus import (
@@ -59,7 +59,7 @@ from ..stats.pairwise import (
     tukey_hsd,
     welch_t,
 )
-from . import PARALLEL_ROWS, DataTable
+from . import PARALLEL_ROWS, DataTable, sampled_caption
 
 MAX_PAIRWISE_GROUPS = 30
 MAX_DUNNETT_GROUPS = 30
@@ -162,16 +162,21 @@ class _TieTable:
 
 
 def _omnibus(
-    samples: list[Sample], ranks: list[np.ndarray], moments: list[Sample]
+    samples: list[Sample], ranks: list[np.ndarray], moments: list[Sample], spread_moments=None
 ) -> tuple[list[dict], dict]:
-    """The overall tests: both ANOVAs from ``moments`` (exact on every engine); Kruskal–Wallis
-    and Brown–Forsythe from the values in ``samples`` (the bounded sample on streamed data)."""
+    """The overall tests: both ANOVAs from ``moments`` and Brown–Forsythe from
+    ``spread_moments`` (n, mean, variance of |x − median| per group) when given (exact on
+    every engine); Kruskal–Wallis, and Brown–Forsythe otherwise, from the values in
+    ``samples`` (the bounded sample on streamed data)."""
     arrays = [s.sorted for s in samples]
     groups = [GroupMoments(m.n, m.mean, m.variance * (m.n - 1)) for m in moments]
     anova = one_way_anova(groups)
     welch = welch_anova(groups)
     kw = kruskal_wallis(arrays, ranks=ranks)
-    spread = spread_test(arrays, center="median")
+    if spread_moments is None:
+        spread = spread_test(arrays, center="median")
+    else:
+        spread = brown_forsythe_from_stats(*zip(*spread_moments, strict=True))
     rows = [
         {
             "test": TEST_ANOVA,
@@ -513,7 +518,14 @@ def _measure_entry(
     all_ranks = stats.rankdata(pooled)
     bounds = np.cumsum([0] + [s.n for s in samples])
     ranks = [all_ranks[bounds[i] : bounds[i + 1]] for i in range(len(samples))]
-    omnibus, spread_row = _omnibus(samples, ranks, moments)
+    spread_moments = None
+    if pieces is not None and pieces.spread is not None:
+        dev = pieces.spread
+        spread_moments = [
+            (int(dev.n[i]), float(dev.means[i]), float(dev.m2[i]) / (int(dev.n[i]) - 1))
+            for i in keep
+        ]
+    omnibus, spread_row = _omnibus(samples, ranks, moments, spread_moments)
     lead, lead_reason = _choose_lead(group_rows, spread_row, settings.alpha)
     rank_lead = lead == TEST_KW
 
@@ -726,9 +738,9 @@ def _measure_entry(
     return entry
 
 
-# What the bounded row sample feeds on streamed data (everything else uses every row): the
-# rank statistics, Dunnett's test (from the values), the permutation test, Brown–Forsythe
-# (absolute deviations from each group's median) and what is decided from them.
+# What the bounded row sample feeds on streamed data (everything else, Brown–Forsythe and so
+# the lead test included, uses every row): the rank statistics, Dunnett's test (from the
+# values), the permutation test and what is decided from them.
 SAMPLED_PAIR_KEYS = (
     "mw_u", "mw_method", "mw_p", "mw_p_adjusted", "hl_shift", "hl_ci_low", "hl_ci_high",
     "cliffs_delta", "cliffs_delta_ci_low", "cliffs_delta_ci_high", "dunnett_p",
@@ -744,9 +756,7 @@ SAMPLED_LEAD_KEYS = (
 
 def _mark_sampled(entry: dict, rank_lead: bool) -> None:
     """List, in ``from_sample`` of each dict, the keys whose values came from the sample."""
-    entry["from_sample"] = ["findings", "lead_reason", "lead_test", "spread_test"] + (
-        ["letters"] if rank_lead else []
-    )
+    entry["from_sample"] = ["findings"] + (["letters"] if rank_lead else [])
     for row in entry["omnibus"]:
         if row["test"] == TEST_KW:
             row["from_sample"] = sorted(k for k in row if k != "test")
@@ -907,7 +917,7 @@ def tables(dataset: dict, settings) -> list[DataTable]:
     """Return the omnibus, pairs, letters and not-comparable tables (ids cmp-{mi}-...)."""
     out: list[DataTable] = []
     for mi, entry in enumerate(dataset.get("comparisons", [])):
-        out.extend(measure_tables(entry, mi))
+        out.extend(measure_tables(entry, mi, dataset))
     return out
 
 
@@ -959,8 +969,10 @@ def _cell(value):
     return value
 
 
-def measure_tables(entry: dict, mi: int) -> list[DataTable]:
-    """Return the tables of one measure's comparison entry."""
+def measure_tables(entry: dict, mi: int, dataset: dict | None = None) -> list[DataTable]:
+    """Return the tables of one measure's comparison entry (``dataset`` says whether some
+    numbers came from the row sample)."""
+    dataset = dataset or {}
     measure = entry["measure"]
     out = []
     if entry.get("omnibus"):
@@ -975,7 +987,8 @@ def measure_tables(entry: dict, mi: int) -> list[DataTable]:
                 columns=OMNIBUS_COLUMNS,
                 rows=tuple(rows),
                 caption="The lead test is named above; the others are a sensitivity check. "
-                "Brown–Forsythe tests equal spread, not equal centres.",
+                "Brown–Forsythe tests equal spread, not equal centres."
+                + sampled_caption(dataset, "the Kruskal–Wallis test"),
             )
         )
     if entry.get("pairs"):
@@ -990,7 +1003,11 @@ def measure_tables(entry: dict, mi: int) -> list[DataTable]:
                 ),
                 caption=f"Family: {family.get('description', '')}; adjusted by "
                 f"{family.get('adjust_name', '')}. Tukey, Games–Howell and Dunnett p-values "
-                "control the family-wise error themselves.",
+                "control the family-wise error themselves."
+                + sampled_caption(
+                    dataset,
+                    "the Mann–Whitney, Hodges–Lehmann, Cliff's delta, Dunnett and permutation results",
+                ),
             )
         )
     if entry.get("letters"):

@@ -15,7 +15,7 @@ from ..stats.correlation import CorrelationTable, correlation_tables, pearson_fr
 from ..stats.curvature import RULE, curvature_check, straight_line, straight_line_from_comoments
 from ..stats.loess import loess
 from ..stats.multiplicity import METHOD_NAMES, adjust_pvalues
-from . import Chart, DataTable
+from . import Chart, DataTable, sampled_caption
 
 SCATTER_LIMIT = 1_500  # points shipped per scatter chart (keeps a 1M-row site under 3 MB with room)
 SCATTER_BUDGET = 16_000  # points shipped over all scatter charts of a page (wide tables)
@@ -616,6 +616,7 @@ def tables(dataset: dict, settings) -> list[DataTable]:
                     f"{round(100 * settings.confidence)}% intervals by Fisher's z (Spearman with "
                     "the Bonett–Wright standard error, Kendall with that of Fieller, Hartley & Pearson); "
                     + family["description"]
+                    + sampled_caption(dataset, "the Spearman and Kendall coefficients")
                 ),
             )
         )
@@ -646,7 +647,10 @@ def tables(dataset: dict, settings) -> list[DataTable]:
                     }
                     for r in dataset["relationships"]
                 ),
-                caption="The rule: " + info["curve_rule"] + ". Each curve is described above.",
+                caption="The rule: "
+                + info["curve_rule"]
+                + ". Each curve is described above."
+                + sampled_caption(dataset, "the smooths and this check"),
             )
         )
     curved = {(r["group"], r["a"], r["b"]) for r in dataset["relationships"] if r["curved"]}

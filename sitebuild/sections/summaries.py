@@ -74,8 +74,9 @@ def computed_from(table: Table) -> dict:
         "sample_reason": "the data was read in batches and not kept in memory",
         "sampled_statistics": list(SAMPLED_STATISTICS),
         "note": (
-            f"Summaries, histograms, box statistics, Welch's t, both ANOVAs, Tukey, "
-            f"Games–Howell, Hedges' g, equivalence tests, Pearson's r and straight-line fits use "
+            "Summaries, histograms, box statistics, Welch's t, both ANOVAs, Brown–Forsythe (so "
+            "the choice of lead test), Tukey, Games–Howell, Hedges' g, equivalence tests, "
+            "Pearson's r and straight-line fits use "
             f"all {table.report.rows_used:,} rows, read in batches ({exact.passes} passes; "
             "quartiles, medians and their intervals found exactly by bucketed counting). "
             + ", ".join(SAMPLED_STATISTICS[:-1])
@@ -90,7 +91,6 @@ def computed_from(table: Table) -> dict:
 # result row built from them lists its keys under ``from_sample``.
 SAMPLED_STATISTICS = (
     "Kruskal–Wallis",
-    "Brown–Forsythe (and so the choice of lead test)",
     "Mann–Whitney U",
     "Hodges–Lehmann shifts",
     "Cliff's delta",

@@ -21,7 +21,14 @@ import numpy as np
 # Pearson's r and the straight line from co-moments live beside their array versions.
 from .correlation import pearson_from_comoments as pearson_from_stats
 from .curvature import straight_line_from_comoments as straight_line_from_stats
-from .omnibus import AnovaResult, GroupMoments, WelchAnovaResult, one_way_anova, welch_anova
+from .omnibus import (
+    AnovaResult,
+    GroupMoments,
+    SpreadResult,
+    WelchAnovaResult,
+    one_way_anova,
+    welch_anova,
+)
 from .pairwise import (
     EffectInterval,
     EquivalenceResult,
@@ -189,6 +196,34 @@ def welch_anova_from_stats(
     return welch_anova([_group(*m) for m in zip(ns, means, variances, strict=True)])
 
 
+def brown_forsythe_from_stats(
+    ns: Sequence[int], means: Sequence[float], variances: Sequence[float]
+) -> SpreadResult:
+    """Return the Brown–Forsythe test of equal spread from the moments of each group's
+    absolute deviations from its own median (n, mean and variance of |x − median|).
+
+    A streamed read knows each group's exact median after its order-statistic passes, so one
+    more pass merges these moments exactly.
+
+    Notes
+    -----
+    The one-way ANOVA F of z_ij = |x_ij − median_i|; as
+    :func:`~sitebuild.stats.omnibus.spread_test` with ``center="median"``.
+
+    References
+    ----------
+    Brown, M. B. & Forsythe, A. B. (1974). Robust tests for the equality of variances.
+    JASA 69(346), 364–367.
+
+    Examples
+    --------
+    >>> brown_forsythe_from_stats([4, 4], [1.0, 2.0], [1 / 3, 4 / 3]).df2
+    6
+    """
+    res = one_way_anova_from_stats(ns, means, variances)
+    return SpreadResult(res.statistic, res.df1, res.df2, res.pvalue, "median")
+
+
 def tukey_hsd_from_stats(
     ns: Sequence[int], means: Sequence[float], variances: Sequence[float]
 ) -> list[FamilyPair]:
@@ -243,6 +278,7 @@ def is_flat(variance: float) -> bool:
 
 
 __all__ = [
+    "brown_forsythe_from_stats",
     "detectable_difference_from_stats",
     "games_howell_from_stats",
     "hedges_g_from_stats",

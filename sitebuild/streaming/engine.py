@@ -214,6 +214,7 @@ class ColumnPlan:
     fence_low: np.ndarray | None = None
     fence_high: np.ndarray | None = None
     edges: np.ndarray | None = None
+    median: np.ndarray | None = None  # per label: moments of |value - median| (Brown–Forsythe)
 
 
 @dataclass(frozen=True)
@@ -247,6 +248,7 @@ class ScanTask:
                 "bins": None
                 if plan.edges is None
                 else np.zeros((self.groups, plan.edges.size - 1), dtype=np.int64),
+                "spread": None if plan.median is None else Moments.empty(self.groups),
             }
         return state
 
@@ -286,6 +288,12 @@ class ScanTask:
             small = plan.collect_all[lab]
             if small.any():
                 acc["small"].append((lab[small], v[small]))
+        if plan.median is not None and lab.size:
+            # Absolute deviations from the group's exact median, merged like any moments:
+            # the Brown–Forsythe test is the one-way ANOVA of these.
+            deviations = np.abs(v - plan.median[lab])
+            piece = Moments.of(deviations, lab.astype(np.int32), self.groups)
+            acc["spread"] = acc["spread"].merge(piece)
         if plan.fence_low is not None:
             low = v < plan.fence_low[lab]
             high = v > plan.fence_high[lab]
@@ -377,6 +385,8 @@ class ScanTask:
             np.maximum(acc["whisker_high"], other["whisker_high"], out=acc["whisker_high"])
             if acc["bins"] is not None:
                 acc["bins"] += other["bins"]
+            if acc["spread"] is not None:
+                acc["spread"] = acc["spread"].merge(other["spread"])
         return a
 
 
@@ -537,6 +547,7 @@ class MeasurePieces:
     edges: np.ndarray
     counts: np.ndarray  # groups × bins
     outlier_points: list[list[float]]
+    spread: Moments | None = None  # per group: moments of |value - group median|
 
 
 @dataclass
@@ -663,12 +674,14 @@ class Streamed:
             values_at[name] = at
             q1 = np.full(labels, np.nan)
             q3 = np.full(labels, np.nan)
+            median = np.full(labels, np.nan)
             for label in range(labels):
                 n = int(every.n[label])
                 if n == 0:
                     continue
                 ranks = at.get(label) or dict(enumerate(small.get(label, np.zeros(0)).tolist()))
                 q1[label], q3[label] = _type7(ranks, n, 0.25), _type7(ranks, n, 0.75)
+                median[label] = _type7(ranks, n, 0.5)
             iqr = q3 - q1
             n_all = int(every.n[G])
             if n_all == 0:
@@ -699,6 +712,7 @@ class Streamed:
                 fence_low=np.nan_to_num(q1 - 1.5 * iqr, nan=np.inf),
                 fence_high=np.nan_to_num(q3 + 1.5 * iqr, nan=-np.inf),
                 edges=edges,
+                median=median,
             )
         state = self.runner(self.source, ScanTask(self.label_code, G, finishing, False))
         self.passes += 1
@@ -734,6 +748,7 @@ class Streamed:
                 edges=finishing[name].edges,
                 counts=acc["bins"],
                 outlier_points=points,
+                spread=acc["spread"],
             )
         return out
 
