@@ -61,12 +61,20 @@ def _scopes(table) -> tuple[np.ndarray, np.ndarray]:
     return order, bounds
 
 
+def group_sizes(table) -> np.ndarray:
+    """Return the rows per group: of every row on streamed data, not of the sample."""
+    exact = getattr(table, "exact", None)
+    if exact is not None:
+        return exact.group_rows()
+    return np.bincount(table.codes, minlength=len(table.groups))
+
+
 def chosen_groups(table) -> list[int]:
     """Return the indices of the groups analysed one by one: all, or the largest GROUP_LIMIT."""
     n_groups = len(table.groups)
     if n_groups <= GROUP_LIMIT:
         return list(range(n_groups))
-    sizes = np.bincount(table.codes, minlength=n_groups)
+    sizes = group_sizes(table)
     largest = np.argsort(-sizes, kind="stable")[:GROUP_LIMIT]
     return sorted(int(g) for g in largest)
 
@@ -378,7 +386,7 @@ def compute(table, settings, rng: np.random.Generator, partial: dict | None = No
     names = list(dict.fromkeys([*spec.measures, *([x_name] if x_name else [])]))
     chosen = chosen_groups(table)
     groups = [table.groups[g] for g in chosen]
-    sizes = np.bincount(table.codes, minlength=len(table.groups))
+    sizes = group_sizes(table)
     drawn = sorted(sorted(chosen, key=lambda g: -sizes[g])[:DRAWN_LIMIT])
     summarised = None
     if len(chosen) < len(table.groups):

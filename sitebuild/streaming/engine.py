@@ -20,9 +20,16 @@ What is exact and what is sampled
   wanted rank; passes: typically 3-4 over the data, at most 64 / bits-per-pass.
 - Groups with at most 5,000 values keep all their values and are summarised exactly as in
   memory (Shapiro–Wilk included).
-- Sampled: the Table handed to the other sections holds a seeded uniform sample of at most
-  ``SAMPLE_PER_GROUP`` rows per group (bottom-k keys), so rank tests, smooths, scatter points
-  and pairwise tests there use that sample; results say so.
+- Exact for the sections too: every moment-based comparison (Welch's t, both ANOVAs,
+  Tukey–Kramer, Games–Howell, Hedges' g, TOST, detectable difference), Brown–Forsythe (the
+  moments of |value - group median|, merged in the finishing pass), Pearson's r and the
+  straight-line fits, from :meth:`Streamed.group_moments`, :meth:`Streamed.pair_moments` and
+  :meth:`Streamed.measures` (see :mod:`sitebuild.stats.from_moments`).
+- Sampled: the Table handed to the sections holds a seeded uniform sample of at most
+  ``SAMPLE_PER_GROUP`` rows per group (bottom-k keys) for what needs the values themselves:
+  rank tests and rank correlations, Hodges–Lehmann, Cliff's delta, Dunnett, permutation
+  tests, smooths and scatter points. Each results object lists those keys under
+  ``from_sample``.
 """
 
 from __future__ import annotations
@@ -587,6 +594,11 @@ class Streamed:
         with np.errstate(invalid="ignore", divide="ignore"):
             variance = np.where(n > 1, m.m2 / np.maximum(n - 1, 1), np.nan)
         return list(zip(n.tolist(), m.means.tolist(), variance.tolist(), strict=True))
+
+    def group_rows(self) -> np.ndarray:
+        """Return the rows of each group (display order), missing values included."""
+        name = next(iter(self.moments))
+        return self.moments[name].n + self.missing_by_group[name]
 
     def flat(self, name: str) -> np.ndarray:
         """Return per group, then all rows, whether column ``name`` holds one value only."""
