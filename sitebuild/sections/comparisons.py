@@ -103,6 +103,17 @@ def _skewness(sample: Sample) -> float | None:
     return _num(stats.skew(sample.sorted, bias=False))
 
 
+GROUP_ROW_KEYS = ("group", "n", "mean", "sd", "median", "min", "max", "skewness")
+
+
+def _group_row(summary_row: dict) -> dict:
+    """One group row of a comparison entry, taken from the summaries section's row."""
+    row = {key: summary_row[key] for key in GROUP_ROW_KEYS}
+    if row["n"] < 2:
+        row["sd"] = None
+    return row
+
+
 def _summary_group_rows(groups: Sequence[str], summaries: Sequence) -> list[dict]:
     """The group rows from exact summaries (streamed data: every row, not the sample)."""
     return [
@@ -442,12 +453,14 @@ def _measure_entry(
     perm_seed: int | None,
     balance: dict | None = None,
     pieces=None,
+    summaries: dict | None = None,
 ) -> dict:
     """Return one measure's comparison entry.
 
     ``pieces`` (streamed data only) are the measure's exact summaries; then group rows and
     every moment-based statistic use all rows, and the rank statistics the bounded sample
-    held in ``table`` (listed under ``from_sample``)."""
+    held in ``table`` (listed under ``from_sample``). ``summaries`` maps (measure, group) to
+    the summaries section's row, whose numbers the group rows then repeat."""
     spec = table.spec
     groups = list(table.groups)
     arrays = table.by_group(measure)
@@ -469,9 +482,13 @@ def _measure_entry(
         )
 
     def rows_of(index: list[int]) -> list[dict]:
+        names = [groups[i] for i in index]
+        if summaries is not None:
+            # The summaries section's own numbers: one summary core for every engine.
+            return [_group_row(summaries[(measure, name)]) for name in names]
         if pieces is None:
-            return _group_rows([groups[i] for i in index], [samples_all[i] for i in index])
-        return _summary_group_rows([groups[i] for i in index], [pieces.summaries[i] for i in index])
+            return _group_rows(names, [samples_all[i] for i in index])
+        return _summary_group_rows(names, [pieces.summaries[i] for i in index])
 
     if biggest > SCALE_LIMIT or 0 < biggest < 1 / SCALE_LIMIT:
         # Squares of such values overflow or vanish in double precision, so variances and
@@ -829,11 +846,17 @@ def _sensitivity_disagreement(r: dict, rank_lead: bool, mode: str, alpha: float)
 def compute(table, settings, rng: np.random.Generator, partial: dict | None = None) -> dict:
     """Return ``{"comparisons": [...]}``: one entry per measure, in the manifest's order.
 
-    ``partial`` (results already computed for this dataset) is accepted for the section
-    contract; this section computes the few summaries it needs itself (skewness, SDs) so it
-    does not depend on another section's shape.
+    ``partial`` (results already computed for this dataset): when it holds the summaries
+    section's rows, the group rows (n, mean, SD, median, extremes, skewness) repeat them, so
+    a number is computed once; without them this section computes its own.
     """
-    del partial
+    summaries = None
+    if partial and partial.get("summaries"):
+        summaries = {
+            (row["measure"], row["group"]): row
+            for row in partial["summaries"]
+            if row["group"] is not None
+        }
     spec = table.spec
     perm_seed = int(rng.integers(0, 2**31 - 1)) if spec.permutations > 0 else None
     # One child generator per measure: results do not depend on the order measures are run,
@@ -848,7 +871,7 @@ def compute(table, settings, rng: np.random.Generator, partial: dict | None = No
 
     def entry_for(job) -> dict:
         return _measure_entry(
-            table, job[0], settings, job[1], perm_seed, balance, pieces.get(job[0])
+            table, job[0], settings, job[1], perm_seed, balance, pieces.get(job[0]), summaries
         )
 
     if table.n_rows >= PARALLEL_ROWS and len(jobs) > 1:
