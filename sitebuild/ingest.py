@@ -582,23 +582,22 @@ def engine_for(spec: DatasetSpec) -> str:
 def read_table(
     spec: DatasetSpec, rng: np.random.Generator | None = None, sha256: str | None = None
 ) -> Table:
-    """Return the dataset as a :class:`Table`, with an :class:`IngestReport` of what happened.
+    """Return the dataset read into memory as a :class:`Table`, with an :class:`IngestReport`
+    of what happened (the "memory" engine).
 
-    With the "stream" or "dask" engine (see :func:`engine_for`) the Table's rows are a seeded
-    sample of at most a fixed number per group, drawn with ``rng`` (default: seeded from the
-    dataset's name), and ``Table.exact`` holds exact summaries of every row. ``sha256``, when
-    the caller has already hashed the file (or folder, see
-    :func:`sitebuild.streaming.source.source_sha256`), saves hashing it a second time.
+    :func:`sitebuild.engines.read_table` picks the engine (see :func:`engine_for`) and is what
+    the build calls; this raises ValueError for a dataset another engine reads. ``rng`` is
+    accepted for the same call shape. ``sha256``, when the caller has already hashed the file,
+    saves hashing it a second time.
     """
     engine = engine_for(spec)
-    if engine == "stream":
-        from .streaming.engine import read_streamed
-
-        return read_streamed(spec, rng, sha256=sha256)
-    if engine == "dask":
-        from .engines.dask import read_with_dask
-
-        return read_with_dask(spec, rng, sha256=sha256)
+    if engine != "memory":
+        # The streamed engines import this module; reading through them happens one level
+        # up, so the modules form no import cycle.
+        raise ValueError(
+            f"{spec.name} is read by the {engine} engine: use sitebuild.engines.read_table"
+        )
+    del rng  # every row is read: nothing is sampled
     frame, encoding, delimiter, warnings = read_frame(spec)
     rows_read = int(len(frame))
     all_codes, groups = group_codes(frame[spec.group], spec.order)

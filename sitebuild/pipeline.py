@@ -8,7 +8,6 @@ from __future__ import annotations
 
 import dataclasses
 import hashlib
-import importlib
 import json
 import os
 import sys
@@ -30,7 +29,7 @@ from .cache import (
 )
 from .errors import SitebuildError
 from .manifest import Manifest, load_manifest
-from .sections import PARALLEL_ROWS, SECTION_NAMES
+from .sections import PARALLEL_ROWS, section_modules
 
 
 @dataclass(frozen=True)
@@ -138,11 +137,6 @@ def one_blas_thread():
 
     with threadpool_limits(limits=1, user_api="blas"):
         yield
-
-
-def section_modules() -> list:
-    """Return the section modules in page order."""
-    return [importlib.import_module(f"sitebuild.sections.{name}") for name in SECTION_NAMES]
 
 
 def dataset_rng(seed: int, dataset: str, section: int):
@@ -263,7 +257,7 @@ def resolve_out(manifest: Manifest, out: str | Path | None) -> Path:
 
 def check(project: str | Path, out: str | Path | None = None) -> CheckReport:
     """Validate the manifest and read every dataset; write nothing."""
-    from .ingest import read_table
+    from .engines import read_table
     from .site.publish import check_target
 
     manifest = load_manifest(project)
@@ -503,7 +497,7 @@ def build(
                 if say:
                     say(f"{spec.name}: unchanged, results reused")
                 continue
-            from .ingest import read_table
+            from .engines import read_table
             from .results import clean
 
             if say:
@@ -544,7 +538,9 @@ def build(
             # Dated by SOURCE_DATE_EPOCH, else by the data files' newest modification time.
             dated = build_time() or data_time(manifest)
             history = extend_history(previous, computed, manifest.site.history, dated)
-        results = {**computed, "changes": changes, "history": history}
+        from .results import stamped
+
+        results = stamped({**computed, "changes": changes, "history": history})
         if numbers_changed:
             report_changes = tuple(changes["summary"])
         else:

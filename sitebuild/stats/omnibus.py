@@ -77,13 +77,27 @@ def _pivot(groups: Sequence[np.ndarray]) -> float:
     return 0.0
 
 
-def _moments(groups: Sequence[np.ndarray]) -> list[GroupMoments]:
+def _moments(groups: Sequence[np.ndarray] | Sequence[GroupMoments]) -> list[GroupMoments]:
     """Moments of each group; the means are relative to one common pivot.
 
     Every statistic built here depends only on differences of means and on centred sums of
     squares, both unchanged by a common shift, so the shifted means are used as they are.
-    The sums of squares come from the unshifted values.
+    The sums of squares come from the unshifted values. Moments given as such (streamed data,
+    :mod:`sitebuild.stats.from_moments`; their means may be relative to any common pivot)
+    are used as they are.
     """
+    if groups and all(isinstance(g, GroupMoments) for g in groups):
+        moments = list(groups)
+    else:
+        moments = _array_moments(groups)
+    if len(moments) < 2:
+        raise ValueError("need at least two groups")
+    if any(m.n < 1 for m in moments):
+        raise ValueError("every group needs at least one value")
+    return moments
+
+
+def _array_moments(groups: Sequence[np.ndarray]) -> list[GroupMoments]:
     pivot = _pivot(groups)
     moments = []
     for g in groups:
@@ -91,10 +105,6 @@ def _moments(groups: Sequence[np.ndarray]) -> list[GroupMoments]:
         own = group_moments(x)  # the spread from the values themselves: shifting could round
         # away differences far below the pivot's precision (values near 5e-324 beside 1.0)
         moments.append(GroupMoments(own.n, group_moments(x - pivot).mean, own.ss))
-    if len(moments) < 2:
-        raise ValueError("need at least two groups")
-    if any(m.n < 1 for m in moments):
-        raise ValueError("every group needs at least one value")
     return moments
 
 
