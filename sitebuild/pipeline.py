@@ -48,6 +48,7 @@ class DatasetReport:
     measures: int
     warnings: tuple[str, ...] = ()
     reused: bool = False
+    notes: tuple[str, ...] = ()  # what reading did (filters, trimmed labels, decimal commas)
 
 
 @dataclass(frozen=True)
@@ -106,6 +107,16 @@ class CheckReport:
     datasets: tuple[DatasetReport, ...]
     notices: tuple[str, ...] = ()
 
+    def to_json(self) -> dict:
+        """Return the check report as JSON-ready data (paths as text)."""
+        return {
+            "valid": True,
+            "manifest": str(self.manifest),
+            "out": str(self.out),
+            "datasets": [dataclasses.asdict(d) for d in self.datasets],
+            "notices": list(self.notices),
+        }
+
 
 class Timer:
     """Collects seconds spent per named stage."""
@@ -150,6 +161,7 @@ def _dataset_report(table, reused: bool = False) -> DatasetReport:
         measures=len(table.spec.measures),
         warnings=report.warnings,
         reused=reused,
+        notes=report.notes,
     )
 
 
@@ -270,6 +282,7 @@ def _report_from_results(ds: dict, reused: bool) -> DatasetReport:
         measures=len(ds["measures"]),
         warnings=tuple(source.get("warnings", ())),
         reused=reused,
+        notes=tuple(source.get("notes", ())),
     )
 
 
