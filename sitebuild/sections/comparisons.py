@@ -422,10 +422,24 @@ def _measure_entry(
         entry = _empty_entry(measure, reason, [], _group_rows(groups, samples_all))
         entry["findings"] = findings_mod.measure_findings(entry, settings)
         return entry
+    # Groups under the manifest's min_group_size are shown in the summaries but left out of
+    # every test and headline: a few values give intervals too wide to say anything.
+    smallest = max(2, getattr(spec, "min_group_size", 2))
     for i, s in enumerate(samples_all):
         if s.n < 2:
             excluded.append(
                 {"group": groups[i], "n": s.n, "reason": f"fewer than 2 values (n = {s.n})"}
+            )
+        elif s.n < smallest:
+            excluded.append(
+                {
+                    "group": groups[i],
+                    "n": s.n,
+                    "reason": (
+                        f"only {s.n} values, fewer than min_group_size = {smallest}; the group is "
+                        "shown in the summaries but not tested"
+                    ),
+                }
             )
         elif not s.variance > 0:
             excluded.append(
