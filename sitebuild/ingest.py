@@ -600,6 +600,20 @@ STREAM_ROWS = 5_000_000
 STREAM_BYTES = 1 << 30  # a CSV/TSV or Parquet file larger than this is streamed by default
 
 
+def source_digest(spec: DatasetSpec) -> str:
+    """Return the SHA-256 results.json records for ``spec``'s data: of the file, or of the
+    (name, hash) list of a folder or glob of text files or of Parquet parts."""
+    from .readers import sources
+
+    if sources.is_pattern(spec.file) or (spec.path.is_dir() and sources.handles(spec)):
+        return sources.digest(spec)
+    if spec.path.is_dir():
+        from .streaming.source import source_sha256
+
+        return source_sha256(spec.path)
+    return file_sha256(spec.path)
+
+
 def engine_for(spec: DatasetSpec) -> str:
     """Return the engine that reads ``spec``: "memory", "stream" or "dask".
 
@@ -699,7 +713,7 @@ def read_table(
             warnings = [*warnings, f"column '{name}' has no values (all {count:,} are missing)."]
     report = IngestReport(
         file=spec.file,
-        sha256=sha256 or file_sha256(spec.path),
+        sha256=sha256 or source_digest(spec),
         rows_read=rows_read,
         rows_used=rows_read - dropped,
         rows_dropped=dropped,

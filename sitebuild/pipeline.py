@@ -487,7 +487,9 @@ def build(
         datasets, reports, checksums = [], [], []
         for spec in manifest.datasets:
             with timer.stage("cache"):
-                sha = file_digest(spec.path)
+                from .ingest import source_digest
+
+                sha = source_digest(spec)
                 key = dataset_key(sha, spec, manifest.site)
                 found = cache.load_checked("results", key)
             if found is not None and found[0].get("source", {}).get("sha256") == sha:

@@ -97,11 +97,6 @@ def new_project(folder: str | Path) -> NewProject:
         raise SitebuildError(
             f"{root}: exists and is a file; choose a new folder name for 'sitebuild new'."
         )
-    if root.is_dir() and any(root.iterdir()):
-        raise SitebuildError(
-            f"{root}: the folder is not empty; choose a new or empty folder for 'sitebuild new' "
-            "(nothing was changed)."
-        )
     per = 12
     contents = {
         "manifest.toml": MANIFEST.format(folder=root.as_posix(), seed=SEED),
@@ -109,6 +104,14 @@ def new_project(folder: str | Path) -> NewProject:
         "notes/loaves.md": NOTES.format(n=per * len(FLOURS), per=per),
         ".gitignore": "site/\n.sitebuild_cache/\n",
     }
+    # A folder that already holds the user's files is fine; nothing in it is overwritten.
+    taken = [name for name in contents if (root / name).exists()]
+    if taken:
+        raise SitebuildError(
+            f"{root}: already holds {', '.join(taken)}, which 'sitebuild new' never overwrites; "
+            "choose another folder, or use 'sitebuild new FOLDER --from your-data.csv' "
+            "(nothing was changed)."
+        )
     try:
         for name, text in contents.items():
             path = root / name
