@@ -305,7 +305,7 @@ def test_labels_are_trimmed_and_case_variants_warned(tmp_path):
     table = table_of(tmp_path, "data/t.csv", {"data/t.csv": CLINICS})
     assert table.groups == ("Cardiology", "cardiology", "Oncology")
     assert group_means(table) == {"Cardiology": 15.0, "cardiology": 30.0, "Oncology": 6.0}
-    assert any("2 group labels in 'g' had spaces" in n for n in table.report.notes)
+    assert any("2 group labels in 'g' were trimmed" in n for n in table.report.notes)
     assert any(
         "'Cardiology' and 'cardiology'" in w and "aliases" in w for w in table.report.warnings
     )

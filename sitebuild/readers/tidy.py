@@ -112,8 +112,8 @@ def prepare(frame, spec, header: list[str]) -> Prepared:
         changed = int((trimmed != text).fillna(False).sum())
         if changed:
             notes.append(
-                f"{changed:,} group label{'s' if changed != 1 else ''} in '{spec.group}' had "
-                "spaces around them; they were trimmed."
+                f"{changed:,} group label{'s' if changed != 1 else ''} in '{spec.group}' "
+                f"{'was' if changed == 1 else 'were'} trimmed of surrounding spaces."
             )
         if spec.aliases:
             merged = int(trimmed.isin(list(spec.aliases)).sum())

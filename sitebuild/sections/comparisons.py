@@ -430,6 +430,15 @@ def _measure_entry(
             excluded.append(
                 {"group": groups[i], "n": s.n, "reason": f"fewer than 2 values (n = {s.n})"}
             )
+        elif not s.variance > 0:
+            excluded.append(
+                {
+                    "group": groups[i],
+                    "n": s.n,
+                    "reason": f"no variation: all {s.n} values are {s.sorted[0]:g}",
+                    "value": _num(s.sorted[0]),
+                }
+            )
         elif s.n < smallest:
             excluded.append(
                 {
@@ -441,15 +450,6 @@ def _measure_entry(
                     ),
                 }
             )
-        elif not s.variance > 0:
-            excluded.append(
-                {
-                    "group": groups[i],
-                    "n": s.n,
-                    "reason": f"no variation: all {s.n} values are {s.sorted[0]:g}",
-                    "value": _num(s.sorted[0]),
-                }
-            )
         else:
             keep.append(i)
     names = [groups[i] for i in keep]
@@ -457,8 +457,8 @@ def _measure_entry(
     group_rows = _group_rows(names, samples)
     if len(keep) < 2:
         reason = (
-            "fewer than two groups have at least 2 values with some variation, so groups "
-            "cannot be compared for this measure"
+            f"fewer than two groups have at least {smallest} values with some variation "
+            "(min_group_size), so groups cannot be compared for this measure"
         )
         entry = _empty_entry(measure, reason, excluded, group_rows)
         entry["findings"] = findings_mod.measure_findings(entry, settings)
