@@ -659,6 +659,15 @@ def read_table(
     :func:`sitebuild.streaming.source.source_sha256`), saves hashing it a second time.
     """
     engine = engine_for(spec)
+    if engine != "memory":
+        memory_only = [k for k in ("where", "aliases", "date_format") if getattr(spec, k)]
+        if memory_only:
+            raise SitebuildError(
+                f"dataset '{spec.name}': {', '.join(memory_only)} "
+                f"{'is' if len(memory_only) == 1 else 'are'} applied by the in-memory engine "
+                f"only, and this dataset is read by the {engine} engine; remove "
+                f'{"it" if len(memory_only) == 1 else "them"} or set engine = "memory".'
+            )
     if engine == "stream":
         from .streaming.engine import read_streamed
 

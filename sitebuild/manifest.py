@@ -300,6 +300,17 @@ def _project_path(check: _Checker, root: Path, where: str, key: str, raw: str, b
         import glob
 
         matches = [Path(p) for p in glob.glob(str(resolved), recursive=True)]
+        base = resolved
+        while any(c in base.as_posix() for c in "*?["):
+            base = base.parent
+        if not _inside(root, base):
+            check.fail(
+                where,
+                key,
+                f"'{raw}' resolves outside the project folder (through a link)",
+                "copy the files into the project folder",
+                block,
+            )
         if not any(p.is_file() and _inside(root, p) for p in matches):
             check.fail(
                 where,

@@ -42,8 +42,14 @@ def text_parts(spec) -> list[Path]:
         found = [Path(p) for p in globbing.glob(str(spec.path), recursive=True)]
     else:
         found = [p for p in spec.path.rglob("*") if p.is_file()]
+    # Only files inside the folder (or the pattern's folder): a link leading out is skipped.
+    base = _base(spec).resolve()
     return sorted(
-        (p for p in found if p.is_file() and full_suffix(p) in TEXT_PARTS),
+        (
+            p
+            for p in found
+            if p.is_file() and full_suffix(p) in TEXT_PARTS and p.resolve().is_relative_to(base)
+        ),
         key=lambda p: p.as_posix(),
     )
 
