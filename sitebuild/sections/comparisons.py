@@ -281,6 +281,8 @@ def _pair_record(
         delta = (_num(cd.estimate), _num(cd.ci_low), _num(cd.ci_high))
         if cd.reason:
             reasons["cliffs_delta_ci"] = cd.reason
+            if cd.ci_low is None:  # e.g. complete separation: the reason names both ends
+                reasons["cliffs_delta_ci_low"] = reasons["cliffs_delta_ci_high"] = cd.reason
         if hl.reason:
             reasons["hl_ci"] = hl.reason
     detect = detectable_difference(sa, sb, alpha=settings.alpha, power=0.8)
