@@ -68,15 +68,28 @@ def choose_decimal(text, name: str, override: str | None = None) -> DecimalChoic
 
 
 def normalise(text, mark: str):
-    """Return the stripped text column rewritten with a decimal point and no thousands marks."""
-    cleaned = text.str.replace(_SPACES, "", regex=True)
+    """Return the stripped text column rewritten with a decimal point and no thousands marks.
+
+    Only values holding a space, comma or (with a decimal comma) a point are rewritten, so
+    a column of plain numbers costs one scan per mark.
+    """
+    cleaned = text
+    spaced = cleaned.str.contains(r"\d[ \u00a0\u202f']\d", regex=True, na=False)
+    if spaced.any():
+        cleaned = cleaned.where(~spaced, cleaned.str.replace(_SPACES, "", regex=True))
     if mark == ",":
-        grouped = cleaned.str.fullmatch(_COMMA_DECIMAL, na=False) | cleaned.str.fullmatch(
-            r"[+-]?\d{1,3}(?:\.\d{3})+", na=False
-        )
-        cleaned = cleaned.where(~grouped, cleaned.str.replace(".", "", regex=False))
+        dotted = cleaned.str.contains(".", regex=False, na=False)
+        if dotted.any():
+            grouped = dotted & (
+                cleaned.str.fullmatch(_COMMA_DECIMAL, na=False)
+                | cleaned.str.fullmatch(r"[+-]?\d{1,3}(?:\.\d{3})+", na=False)
+            )
+            cleaned = cleaned.where(~grouped, cleaned.str.replace(".", "", regex=False))
         return cleaned.str.replace(",", ".", regex=False)
-    grouped = cleaned.str.fullmatch(_POINT_THOUSANDS, na=False)
+    commas = cleaned.str.contains(",", regex=False, na=False)
+    if not commas.any():
+        return cleaned
+    grouped = commas & cleaned.str.fullmatch(_POINT_THOUSANDS, na=False)
     return cleaned.where(~grouped, cleaned.str.replace(",", "", regex=False))
 
 

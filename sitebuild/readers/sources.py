@@ -134,7 +134,9 @@ def read_text(spec, raw: bytes, shown: str, suffix: str):
         frame = pd.read_csv(
             io.StringIO(text),
             sep=delimiter,
-            dtype=str,
+            # Plain numbers are parsed by pandas; columns with decimal commas, thousands marks
+            # or dates stay text for sitebuild.readers. decimal set: every column is text.
+            dtype=str if spec.decimal else {spec.group: str},
             na_values=list(MISSING_TOKENS),
             keep_default_na=False,
             index_col=False,
@@ -198,6 +200,9 @@ def read_spreadsheet(spec, path: Path):
     frame = pd.DataFrame(body, columns=header, dtype=object)
     # calamine gives "" for an empty cell; whole numbers in a label column read as 1.0.
     frame = frame.replace("", None)
+    # Columns of plain number cells become float64 and of date cells datetime64, so they
+    # skip the text parsing that mixed columns need.
+    frame = frame.infer_objects()
     if spec.group in frame.columns:
         frame[spec.group] = frame[spec.group].map(_cell_text)
     return frame
