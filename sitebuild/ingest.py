@@ -143,7 +143,7 @@ def display_key(order: tuple[str, ...] = ()):
     return key
 
 
-def _decode_head(path: Path, raw: bytes) -> tuple[str, str, list[str]]:
+def _decode_head(path: Path, raw: bytes, shown: str | None = None) -> tuple[str, str, list[str]]:
     """Return (encoding for pandas, decoded head, warnings)."""
     if b"\x00" in raw[:8192]:
         raise SitebuildError(
@@ -159,13 +159,24 @@ def _decode_head(path: Path, raw: bytes) -> tuple[str, str, list[str]]:
         # A multi-byte character cut by the head's end is still UTF-8.
         if exc.start >= len(raw) - 4:
             return "utf-8", raw[: exc.start].decode("utf-8"), []
-    return (
-        "latin-1",
-        raw.decode("latin-1"),
-        [
-            f"{path.name} is not UTF-8; it was read as Latin-1 — check that accented labels look right."
-        ],
-    )
+    # Windows-1252, as the in-memory reader (sitebuild.readers.encodings); Latin-1 only when
+    # the head holds a byte Windows-1252 leaves undefined, as a streaming decoder needs one
+    # codec for the whole file.
+    from .readers.encodings import LEGACY, decode
+
+    try:
+        raw.decode(LEGACY)
+    except UnicodeDecodeError:
+        return (
+            "latin-1",
+            raw.decode("latin-1"),
+            [
+                f"{shown or path.name} is not UTF-8; it was read as Latin-1 — check that accented "
+                "labels look right, or set encoding in the manifest."
+            ],
+        )
+    text, encoding, warnings = decode(raw, shown or path.name)
+    return encoding, text, warnings
 
 
 def sniff_delimiter(head: str, suffix: str) -> str:
@@ -336,7 +347,7 @@ def read_head(spec: DatasetSpec, path: Path, suffix: str) -> Head:
     (shared by the in-memory reader and the stream engine)."""
     with open(path, "rb") as handle:
         head_bytes = handle.read(HEAD_BYTES)
-    encoding, text, warnings = _decode_head(path, head_bytes)
+    encoding, text, warnings = _decode_head(path, head_bytes, spec.file)
     delimiter = sniff_delimiter(text, suffix)
     first = text.splitlines()[0] if text.splitlines() else ""
     header = next(csv.reader([first], delimiter=delimiter), [])

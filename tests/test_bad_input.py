@@ -590,7 +590,7 @@ def test_d18_infinities_are_counted_as_not_numbers(project, capsys):
     data = "g,v,w\nA,inf,2\nA,-inf,3\nA,1,1\nB,Infinity,4\nB,4,5\nB,2,2\n"
     built = accepted(project, capsys, files={"data/d.csv": data})
     assert built.ds["source"]["unparsed"]["v"]["count"] == 3
-    assert "3 values in 'v' not numbers" in built.stdout
+    assert "3 values in 'v' are not numbers" in built.stdout
     assert "could not be read as numbers" in built.page
 
 
@@ -635,7 +635,7 @@ def test_d20_huge_text_cell_in_a_measure(project, capsys):
     data = "g,v,w\nA," + "x" * 1_000_000 + ",2\nA,1,3\nA,2,2\nB,2,4\nB,3,5\n"
     built = accepted(project, capsys, files={"data/d.csv": data})
     assert built.ds["source"]["unparsed"]["v"] == {"count": 1, "examples": ["x" * 40]}
-    assert "1 value in 'v' not numbers" in built.stdout
+    assert "1 value in 'v' is not a number" in built.stdout
     assert len(built.page) < 500_000
 
 
