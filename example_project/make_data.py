@@ -1,7 +1,8 @@
 """Write the example project's data files from one seeded random generator.
 
-The scenario is invented: a hydroponic growing trial, order picking in a warehouse, and a
-small seed-coating germination test. Running this script again gives byte-identical files
+The scenario is invented: a hydroponic growing trial, order picking in a warehouse, a
+small seed-coating germination test, and a spreadsheet of parcel depot delivery delays
+with a date column (written with openpyxl, from the test extra). Running this script again gives byte-identical files
 (one numpy Generator with a fixed seed, fixed number formatting, fixed line endings).
 
     python example_project/make_data.py
@@ -173,14 +174,87 @@ def germination(rng: np.random.Generator) -> list[list[str]]:
     return [header, *rows]
 
 
+DEPOTS = {
+    # depot: (deliveries per week, mean delay in min at the start, added delay per 30 days)
+    "Harbour": (9, 14.0, 1.5),
+    "Airport": (9, 9.0, 0.2),
+    "Ring road": (8, 18.0, 3.0),
+    "Old town": (6, 24.0, -2.0),
+}
+
+
+def depot_deliveries(rng: np.random.Generator) -> list[list]:
+    """Parcel depots over one season, as a spreadsheet export: a title line and an empty line
+    above the header, dates as real date cells, one depot label typed with a trailing space.
+
+    Delays drift with the season (Ring road worse, Old town better after its new loading bay),
+    so the smooths against the date have something to show.
+    """
+    import datetime as dt
+
+    start = dt.date(2026, 3, 2)
+    rows: list[list] = [
+        ["Parcel depots – delivery log, spring 2026 (export)"],
+        [],
+        ["date", "depot", "driver", "delay (min)", "parcels"],
+    ]
+    for week in range(16):
+        for depot, (per_week, delay, drift) in DEPOTS.items():
+            for _ in range(per_week):
+                day = start + dt.timedelta(days=int(week * 7 + rng.integers(0, 6)))
+                days = (day - start).days
+                late = max(0.0, rng.gamma(2.0, (delay + drift * days / 30) / 2.0))
+                parcels = int(rng.poisson(140 if depot != "Old town" else 90))
+                driver = f"D{int(rng.integers(1, 25)):02d}"
+                rows.append([day, depot, driver, round(float(late), 1), parcels])
+    rows[12][1] = "Harbour "  # typed with a trailing space; the reader trims it
+    return rows
+
+
+def _write_xlsx(path: Path, sheet: str, rows: list[list]) -> None:
+    """Write rows as one sheet of an .xlsx, byte for byte the same on every run."""
+    import datetime as dt
+    import io
+    import re
+    import zipfile
+
+    import openpyxl
+
+    book = openpyxl.Workbook()
+    book.active.title = sheet
+    for row in rows:
+        book.active.append(row)
+    for cell in book.active["A"][3:]:
+        cell.number_format = "yyyy-mm-dd"
+    fixed = dt.datetime(2026, 6, 30, 12, 0, 0)
+    book.properties.created = book.properties.modified = fixed
+    buffer = io.BytesIO()
+    book.save(buffer)
+    # openpyxl stamps each zip entry with the current time: rewrite them with a fixed one.
+    out = io.BytesIO()
+    with zipfile.ZipFile(buffer) as src, zipfile.ZipFile(out, "w", zipfile.ZIP_DEFLATED) as dst:
+        for info in src.infolist():
+            entry = zipfile.ZipInfo(info.filename, date_time=fixed.timetuple()[:6])
+            entry.compress_type = zipfile.ZIP_DEFLATED
+            data = src.read(info.filename)
+            if info.filename == "docProps/core.xml":
+                # openpyxl sets "modified" to the time of saving whatever it is given.
+                data = re.sub(
+                    rb"(<dcterms:modified[^>]*>)[^<]*", rb"\g<1>2026-06-30T12:00:00Z", data
+                )
+            dst.writestr(entry, data)
+    path.write_bytes(out.getvalue())
+
+
 def main() -> None:
-    """Write all three data files into example_project/data/."""
+    """Write all four data files into example_project/data/."""
     rng = np.random.default_rng(SEED)
     DATA.mkdir(exist_ok=True)
     _write(DATA / "growing_trial.csv", growing_trial(rng), ",", "\n", bom=False)
     # A spreadsheet export from a European locale: semicolons, decimal commas, CRLF, BOM.
     _write(DATA / "picking_times.csv", picking_times(rng), ";", "\r\n", bom=True)
     _write(DATA / "germination.tsv", germination(rng), "\t", "\n", bom=False)
+    _write_xlsx(DATA / "depot_deliveries.xlsx", "Deliveries", depot_deliveries(rng))
     for path in sorted(DATA.iterdir()):
         print(f"{path.relative_to(DATA.parent)}: {path.stat().st_size:,} bytes")
 

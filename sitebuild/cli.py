@@ -38,10 +38,14 @@ def _dataset_lines(reports) -> list[str]:
         )
         for column, problem in sorted(d.unparsed.items()):
             examples = ", ".join(repr(e) for e in problem["examples"])
+            one = problem["count"] == 1
             lines.append(
-                f"    {problem['count']:,} {'value' if problem['count'] == 1 else 'values'} in "
-                f"'{column}' not numbers (e.g. {examples}); counted as missing"
+                f"    {problem['count']:,} {'value' if one else 'values'} in '{column}' "
+                f"{'is not a number' if one else 'are not numbers'} (e.g. {examples}); "
+                "counted as missing"
             )
+        for note in getattr(d, "notes", ()):
+            lines.append(f"    note: {note}")
         for warning in d.warnings:
             lines.append(f"    warning: {warning}")
     return lines
@@ -83,11 +87,22 @@ def format_build(report, quiet: bool = False) -> str:
 
 def format_check(report) -> str:
     """Return the lines the CLI prints after a check."""
-    lines = [f"{report.manifest} is valid; {len(report.datasets)} datasets would be built:"]
+    n = len(report.datasets)
+    lines = [f"{report.manifest} is valid; {n} dataset{'' if n == 1 else 's'} would be built:"]
     lines += _dataset_lines(report.datasets)
     lines += [f"  note: {n}" for n in report.notices]
     lines.append(f"A build would write the site to {report.out} (nothing was written).")
     return "\n".join(lines)
+
+
+EXAMPLES = """\
+commands, in the order a newcomer uses them:
+  new       sitebuild new trial --from measurements.xlsx
+            (writes trial/manifest.toml proposing groups and measures, then builds)
+  check     sitebuild check trial        (reads everything, writes nothing)
+  build     sitebuild build trial        (writes trial/site/index.html)
+  manifest  sitebuild manifest           (every manifest key, its meaning and default)
+"""
 
 
 def _debug_flag(command) -> None:
@@ -101,10 +116,32 @@ def parser() -> argparse.ArgumentParser:
     top = argparse.ArgumentParser(
         prog="sitebuild",
         description="Turn a folder of datasets and a manifest into an offline site comparing groups.",
+        epilog=EXAMPLES,
+        formatter_class=argparse.RawDescriptionHelpFormatter,
     )
     top.add_argument("--version", action="version", version=f"sitebuild {__version__}")
     top.add_argument("--debug", action="store_true", help="show the full traceback on errors")
     commands = top.add_subparsers(dest="command", metavar="COMMAND", required=True)
+
+    new = commands.add_parser(
+        "new",
+        help="start a project: from your data file (--from), or with a small invented dataset",
+    )
+    new.add_argument(
+        "folder", help="the folder to create, or a folder of yours (nothing is overwritten)"
+    )
+    new.add_argument(
+        "--from",
+        dest="source",
+        metavar="DATA",
+        help="your data file (.csv, .xlsx, ...): propose a manifest for it and build at once",
+    )
+    _debug_flag(new)
+    check = commands.add_parser("check", help="validate the manifest and data; write nothing")
+    check.add_argument("project", help="the project folder (holding manifest.toml)")
+    check.add_argument("--out", help="the output folder a build would use")
+    check.add_argument("--json", action="store_true", help="print the check report as JSON")
+    _debug_flag(check)
 
     build = commands.add_parser("build", help="build the site of a project folder")
     build.add_argument("project", help="the project folder (holding manifest.toml)")
@@ -133,16 +170,9 @@ def parser() -> argparse.ArgumentParser:
     )
     _debug_flag(build)
 
-    check = commands.add_parser("check", help="validate the manifest and data; write nothing")
-    check.add_argument("project", help="the project folder (holding manifest.toml)")
-    check.add_argument("--out", help="the output folder a build would use")
-    _debug_flag(check)
-
-    new = commands.add_parser(
-        "new", help="create a project folder with a manifest, notes and a small invented dataset"
+    commands.add_parser(
+        "manifest", help="list every manifest.toml key with its meaning and default"
     )
-    new.add_argument("folder", help="the folder to create (must not exist or be empty)")
-    _debug_flag(new)
     return top
 
 
@@ -179,6 +209,26 @@ def _build(args) -> int:
 
     print("Watching for changes; press Ctrl-C to stop.", file=sys.stderr)
     watch(args.project, once, on_error=failed)
+    return 0
+
+
+def _new(args) -> int:
+    from .scaffold import new_from_data, new_project
+
+    if args.source is None:
+        made = new_project(args.folder)
+        print(f"Created {made.root} with {', '.join(made.files)}.")
+        print(f"Build it with: sitebuild build {args.folder}")
+        return 0
+    from . import build
+
+    made = new_from_data(args.folder, args.source)
+    print(f"Wrote {made.root / 'manifest.toml'}: {made.proposal}")
+    print(format_build(build(made.root, progress=False, quiet=True), quiet=True))
+    print(
+        f"Open {made.root / 'site' / 'index.html'}; edit manifest.toml and run: "
+        f"sitebuild build {args.folder}"
+    )
     return 0
 
 
@@ -223,17 +273,23 @@ def _main(argv: list[str] | None) -> int:
             from . import check
 
             report = check(args.project, out=args.out)
-            print(format_check(report))
-        elif args.command == "new":
-            from .scaffold import new_project
+            if args.json:
+                print(json.dumps(report.to_json(), sort_keys=True, indent=1, allow_nan=False))
+            else:
+                print(format_check(report))
+        elif args.command == "manifest":
+            from .manifest import DATASET_KEYS, SITE_KEYS
+            from .manifest_keys import describe
 
-            made = new_project(args.folder)
-            print(f"Created {made.root} with {', '.join(made.files)}.")
-            print(f"Build it with: sitebuild build {args.folder}")
+            print(describe({"site": SITE_KEYS, "datasets": DATASET_KEYS}), end="")
+        elif args.command == "new":
+            return _new(args)
         return 0
     except SitebuildError as error:
         if debug:
-            raise
+            import traceback
+
+            traceback.print_exc()  # the traceback, and still the exit code of bad input
         print(f"error: {error}", file=sys.stderr)
         return error.exit_code
     except KeyboardInterrupt:

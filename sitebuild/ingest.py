@@ -50,6 +50,10 @@ class IngestReport:
     encoding: str
     delimiter: str | None
     warnings: tuple[str, ...] = ()
+    # What reading did to the data beyond parsing (filters, trimmed labels, decimal commas).
+    notes: tuple[str, ...] = ()
+    # Set when x holds dates: x is then days since ``origin`` (see sitebuild.readers.dates).
+    x_time: dict | None = None
 
     def to_json(self) -> dict:
         """Return the ``source`` block of results.json."""
@@ -68,6 +72,8 @@ class IngestReport:
             "encoding": self.encoding,
             "delimiter": self.delimiter,
             "warnings": list(self.warnings),
+            **({"notes": list(self.notes)} if self.notes else {}),
+            **({"x_time": dict(self.x_time)} if self.x_time else {}),
         }
 
 
@@ -140,7 +146,7 @@ def display_key(order: tuple[str, ...] = ()):
     return key
 
 
-def _decode_head(path: Path, raw: bytes) -> tuple[str, str, list[str]]:
+def _decode_head(path: Path, raw: bytes, shown: str | None = None) -> tuple[str, str, list[str]]:
     """Return (encoding for pandas, decoded head, warnings)."""
     if b"\x00" in raw[:8192]:
         raise SitebuildError(
@@ -156,13 +162,24 @@ def _decode_head(path: Path, raw: bytes) -> tuple[str, str, list[str]]:
         # A multi-byte character cut by the head's end is still UTF-8.
         if exc.start >= len(raw) - 4:
             return "utf-8", raw[: exc.start].decode("utf-8"), []
-    return (
-        "latin-1",
-        raw.decode("latin-1"),
-        [
-            f"{path.name} is not UTF-8; it was read as Latin-1 — check that accented labels look right."
-        ],
-    )
+    # Windows-1252, as the in-memory reader (sitebuild.readers.encodings); Latin-1 only when
+    # the head holds a byte Windows-1252 leaves undefined, as a streaming decoder needs one
+    # codec for the whole file.
+    from .readers.encodings import LEGACY, decode
+
+    try:
+        raw.decode(LEGACY)
+    except UnicodeDecodeError:
+        return (
+            "latin-1",
+            raw.decode("latin-1"),
+            [
+                f"{shown or path.name} is not UTF-8; it was read as Latin-1 — check that accented "
+                "labels look right, or set encoding in the manifest."
+            ],
+        )
+    text, encoding, warnings = decode(raw, shown or path.name)
+    return encoding, text, warnings
 
 
 def sniff_delimiter(head: str, suffix: str) -> str:
@@ -191,6 +208,7 @@ def _needed(spec: DatasetSpec) -> list[str]:
     names = [spec.group, *spec.measures]
     if spec.x and spec.x not in names:
         names.append(spec.x)
+    names += [c for c in spec.where if c not in names]  # filter columns (readers.tidy)
     return names
 
 
@@ -199,17 +217,20 @@ def _check_columns(spec: DatasetSpec, header: list[str]) -> None:
     for name in header:
         seen[name] = seen.get(name, 0) + 1
     available = ", ".join(f"'{h}'" for h in header[:40]) + (" ..." if len(header) > 40 else "")
+    from .readers.tidy import did_you_mean
+
     for role, name in [
         ("group", spec.group),
         *(("measures", m) for m in spec.measures),
         ("x", spec.x),
+        *(("where", c) for c in spec.where),
     ]:
         if name is None:
             continue
         if name not in seen:
             raise SitebuildError(
                 f"{spec.file}: column '{name}' (key '{role}' of dataset '{spec.name}') is not in "
-                f"the file; the columns are {available}."
+                f"the file{did_you_mean(name, list(seen))}; the columns are {available}."
             )
         if seen[name] > 1:
             raise SitebuildError(
@@ -218,9 +239,16 @@ def _check_columns(spec: DatasetSpec, header: list[str]) -> None:
             )
 
 
-def _to_numbers(raw, name: str, decimal_comma: bool) -> tuple[np.ndarray, ColumnProblem | None]:
-    """Convert a pandas Series to float64; count values that are not finite numbers."""
-    import pandas as pd
+def _to_numbers(
+    raw, name: str, decimal_comma: bool, override: str | None = None, notes: list | None = None
+) -> tuple[np.ndarray, ColumnProblem | None]:
+    """Convert a pandas Series to float64; count values that are not finite numbers.
+
+    The decimal mark of a text column is ``override`` (the manifest's ``decimal``) or, unless
+    ``decimal_comma`` says it is a comma, decided from its values; a note saying so is
+    appended to ``notes``.
+    """
+    from .readers.decimals import as_floats, choose_decimal
 
     if raw.dtype.kind in "fiu":
         values = raw.to_numpy(dtype=np.float64, na_value=np.nan)
@@ -229,9 +257,14 @@ def _to_numbers(raw, name: str, decimal_comma: bool) -> tuple[np.ndarray, Column
     else:
         text = raw.astype("string")
         cleaned = text.str.strip()
-        if decimal_comma:
-            cleaned = cleaned.str.replace(",", ".", regex=False)
-        values = pd.to_numeric(cleaned, errors="coerce").to_numpy(dtype=np.float64, na_value=np.nan)
+        if decimal_comma and not override:
+            mark = ","
+        else:
+            choice = choose_decimal(cleaned, name, override)
+            mark = choice.mark
+            if choice.note and notes is not None:
+                notes.append(choice.note)
+        values = as_floats(cleaned, mark)
         present = text.notna().to_numpy() & ~cleaned.isin(MISSING_TOKENS).fillna(False).to_numpy()
         bad = (np.isnan(values) & present) | np.isinf(values)
     count = int(bad.sum())
@@ -317,7 +350,7 @@ def read_head(spec: DatasetSpec, path: Path, suffix: str) -> Head:
     (shared by the in-memory reader and the stream engine)."""
     with open(path, "rb") as handle:
         head_bytes = handle.read(HEAD_BYTES)
-    encoding, text, warnings = _decode_head(path, head_bytes)
+    encoding, text, warnings = _decode_head(path, head_bytes, spec.file)
     delimiter = sniff_delimiter(text, suffix)
     first = text.splitlines()[0] if text.splitlines() else ""
     header = next(csv.reader([first], delimiter=delimiter), [])
@@ -325,6 +358,7 @@ def read_head(spec: DatasetSpec, path: Path, suffix: str) -> Head:
         raise SitebuildError(
             f"{spec.file}: the first line is empty; the first line must name the columns."
         )
+    header = [h.strip() for h in header]  # ' Kosten (€) ' names the column 'Kosten (€)'
     _check_columns(spec, header)
     return Head(text, len(head_bytes) < HEAD_BYTES, encoding, delimiter, header, warnings)
 
@@ -344,9 +378,15 @@ def read_frame(spec: DatasetSpec):
     """Return (pandas DataFrame of the needed columns as read, encoding, delimiter, warnings)."""
     import pandas as pd
 
+    from .readers import sources
+
     path = spec.path
     suffix = path.suffix.lower()
     needed = _needed(spec)
+    if sources.handles(spec):  # spreadsheets, .gz, folders/globs, SQLite, legacy encodings
+        frame, encoding, delimiter, warnings = sources.read_source(spec)
+        _check_columns(spec, [str(c) for c in frame.columns])
+        return frame[needed], encoding, delimiter, warnings
     if path.stat().st_size == 0:
         raise SitebuildError(
             f"{spec.file}: the file is empty; export the data again with a header row."
@@ -375,7 +415,8 @@ def read_frame(spec: DatasetSpec):
     if suffix not in TEXT_SUFFIXES:
         raise SitebuildError(
             f"{spec.file}: files ending '{suffix}' are not supported; use .csv, .tsv, .txt, "
-            ".parquet or .jsonl."
+            ".xlsx, .xls, .ods, .parquet, .jsonl, .sqlite, or one of those text files "
+            "compressed as .gz."
         )
     head = read_head(spec, path, suffix)
     encoding, delimiter, header = head.encoding, head.delimiter, head.header
@@ -417,11 +458,12 @@ def read_frame(spec: DatasetSpec):
         try:
             frame = read(encoding)
         except UnicodeDecodeError:
-            encoding = "latin-1"
-            warnings = [
-                f"{spec.file} is not UTF-8; it was read as Latin-1 — check that accented labels look right."
-            ]
-            frame = read(encoding)
+            # Not UTF-8 past the head: read as Windows-1252 (see sitebuild.readers.encodings).
+            from .readers.sources import read_source
+
+            frame, encoding, delimiter, warnings = read_source(spec)
+            _check_columns(spec, [str(c) for c in frame.columns])
+            return frame[needed], encoding, delimiter, warnings
     except pd.errors.ParserError as exc:
         if "EOF inside string" in str(exc):
             raise SitebuildError(
@@ -448,6 +490,52 @@ def read_frame(spec: DatasetSpec):
             f"or quote fields that contain the delimiter (the header has {len(header)} fields)."
         )
     return frame[needed], encoding, delimiter, warnings
+
+
+def _x_values(raw, spec: DatasetSpec, decimal_comma: bool, notes: list):
+    """Return (x as floats, problem, time-axis block or None): numbers, or dates as days."""
+    from .readers.dates import looks_like_dates, time_axis
+
+    text = None if raw.dtype.kind in "fiuM" else raw.astype("string").str.strip()
+    if raw.dtype.kind == "M" or (
+        text is not None
+        and looks_like_dates(text.where(~text.isin(MISSING_TOKENS)), spec.date_format)
+    ):
+        if text is None:
+            text = raw.astype("string")
+        missing = (text.isna() | text.isin(MISSING_TOKENS)).fillna(True).to_numpy()
+        axis = time_axis(raw, text.where(~text.isin(MISSING_TOKENS)), spec.date_format, missing)
+        problem = ColumnProblem(axis.bad, axis.examples) if axis.bad else None
+        if axis.origin:
+            notes.append(
+                f"x '{spec.x}' holds dates: it is used as days since {axis.origin}, so slopes "
+                "are per day."
+            )
+        return axis.days, problem, (axis.to_json() if axis.origin else None)
+    values, problem = _to_numbers(raw, spec.x, decimal_comma, spec.decimal, notes)
+    if problem and not np.isfinite(values).any():
+        hint = (
+            f" (date_format '{spec.date_format}' matched none of them)" if spec.date_format else ""
+        )
+        raise SitebuildError(
+            f"{spec.file}: column '{spec.x}' (key 'x' of dataset '{spec.name}') holds neither "
+            f"numbers nor dates{hint} (e.g. {', '.join(repr(e) for e in problem.examples)}); "
+            'choose a numeric or date column for x, or set date_format (e.g. "%d/%m/%Y").'
+        )
+    return values, problem, None
+
+
+def _refuse_unreadable(spec: DatasetSpec, name: str, values, problem) -> None:
+    """Refuse a measure with values but not one readable number: its pages would be empty."""
+    if problem is None or np.isfinite(values).any():
+        return
+    examples = ", ".join(repr(e) for e in problem.examples)
+    raise SitebuildError(
+        f"{spec.file}: column '{name}' has {problem.count:,} "
+        f"{'value' if problem.count == 1 else 'values'} but not one readable number "
+        f'(e.g. {examples}); fix the column, set decimal = "," or "." in the manifest, '
+        "or remove it from measures."
+    )
 
 
 UNSURE = -1
@@ -549,6 +637,20 @@ def memory_row_limit(columns: int) -> int:
 STREAM_BYTES = 1 << 30  # a CSV/TSV or Parquet file larger than this is streamed by default
 
 
+def source_digest(spec: DatasetSpec) -> str:
+    """Return the SHA-256 results.json records for ``spec``'s data: of the file, or of the
+    (name, hash) list of a folder or glob of text files or of Parquet parts."""
+    from .readers import sources
+
+    if sources.is_pattern(spec.file) or (spec.path.is_dir() and sources.handles(spec)):
+        return sources.digest(spec)
+    if spec.path.is_dir():
+        from .streaming.source import source_sha256
+
+        return source_sha256(spec.path)
+    return file_sha256(spec.path)
+
+
 def engine_for(spec: DatasetSpec) -> str:
     """Return the engine that reads ``spec``: "memory", "stream" or "dask".
 
@@ -559,6 +661,10 @@ def engine_for(spec: DatasetSpec) -> str:
     """
     if spec.engine in ("stream", "dask"):
         return spec.engine
+    from .readers.sources import handles
+
+    if handles(spec):  # spreadsheets, .gz, folders of text files, SQLite: read whole
+        return "memory"
     if spec.path.is_dir():
         return "stream"
     if spec.engine == "memory":
@@ -598,8 +704,12 @@ def read_table(
             f"{spec.name} is read by the {engine} engine: use sitebuild.engines.read_table"
         )
     del rng  # every row is read: nothing is sampled
+    from .readers import tidy
+
     frame, encoding, delimiter, warnings = read_frame(spec)
     rows_read = int(len(frame))
+    prepared = tidy.prepare(frame, spec, [str(c) for c in frame.columns])
+    frame, notes = prepared.frame, list(prepared.notes)
     all_codes, groups = group_codes(frame[spec.group], spec.order)
     check_label_lengths(spec, groups)
     has_group = all_codes >= 0
@@ -609,25 +719,38 @@ def read_table(
     columns: dict[str, np.ndarray] = {}
     unparsed: dict[str, ColumnProblem] = {}
     missing: dict[str, int] = {}
+    x_time = None
     for name in dict.fromkeys([*spec.measures, *([spec.x] if spec.x else [])]):
-        values, problem = _to_numbers(frame[name], name, decimal_comma)
+        if name == spec.x and name not in spec.measures:
+            values, problem, x_time = _x_values(frame[name], spec, decimal_comma, notes)
+        else:
+            values, problem = _to_numbers(frame[name], name, decimal_comma, spec.decimal, notes)
+        _refuse_unreadable(spec, name, values, problem)
         if problem:
             unparsed[name] = problem
         columns[name] = values if every_row else values[has_group]
     codes = all_codes if every_row else all_codes[has_group]
     for name, values in columns.items():
         missing[name] = int(np.isnan(values).sum())
+    no_group = len(frame) - int(has_group.sum())
+    reasons = dict(prepared.dropped)
+    if no_group:
+        reasons["missing group label"] = no_group
     dropped = rows_read - int(has_group.sum())
-    reasons = {"missing group label": dropped} if dropped else {}
     if rows_read == 0:
         warnings = [*warnings, f"{spec.file} has a header but no data rows."]
-    warnings = [*warnings, *unordered_warnings(spec, groups)]
+    warnings = [
+        *warnings,
+        *unordered_warnings(spec, groups),
+        *tidy.reference_warnings(spec, groups),
+        *tidy.similar_label_warnings(groups, spec.group),
+    ]
     for name, count in missing.items():
         if len(codes) and count == len(codes):
             warnings = [*warnings, f"column '{name}' has no values (all {count:,} are missing)."]
     report = IngestReport(
         file=spec.file,
-        sha256=sha256 or file_sha256(spec.path),
+        sha256=sha256 or source_digest(spec),
         rows_read=rows_read,
         rows_used=rows_read - dropped,
         rows_dropped=dropped,
@@ -637,6 +760,8 @@ def read_table(
         encoding=encoding,
         delimiter=delimiter,
         warnings=tuple(warnings),
+        notes=tuple(notes),
+        x_time=x_time,
     )
     return Table(
         spec=spec, groups=groups, codes=codes.astype(np.int32), columns=columns, report=report

@@ -7,9 +7,11 @@ line where it can be found) and the fix.
 from __future__ import annotations
 
 import difflib
+import hashlib
 import math
 import re
 import tomllib
+import unicodedata
 from dataclasses import dataclass, field
 from pathlib import Path
 
@@ -44,7 +46,26 @@ DATASET_KEYS = {
     "smooth_robust": "integer",
     "permutations": "integer",
     "engine": "text",
+    # Reading real-world files (see sitebuild.readers).
+    "sheet": "text or integer",
+    "encoding": "text",
+    "decimal": "text",
+    "header_row": "integer",
+    "aliases": "table of text",
+    "where": "table of lists",
+    "min_group_size": "integer",
+    "date_format": "text",
+    "table": "text",
+    "query": "text",
 }
+DEFAULT_MIN_GROUP_SIZE = 5  # common practice: below ~5 values a group's tests say little
+# Pages the site writes itself; a dataset's page may never take one of these names.
+RESERVED_SLUGS = frozenset({"index", "changes", "results", "assets", "about", "404"})
+# Windows refuses these as file names whatever the extension.
+WINDOWS_RESERVED = frozenset(
+    {"con", "prn", "aux", "nul"} | {f"com{i}" for i in range(10)} | {f"lpt{i}" for i in range(10)}
+)
+SLUG_LENGTH = 60
 
 
 @dataclass(frozen=True)
@@ -80,11 +101,22 @@ class DatasetSpec:
     smooth_robust: int = 0
     permutations: int = 0
     engine: str = "auto"
+    sheet: str | int | None = None  # spreadsheet sheet: name or 0-based index (default first)
+    encoding: str | None = None  # text encoding; None = detect (BOM, UTF-8, Windows-1252)
+    decimal: str | None = None  # "," or "."; None = decided per column from the values
+    header_row: int = 1  # 1-based line (or spreadsheet row) that names the columns
+    aliases: dict[str, str] = field(default_factory=dict)  # group label -> label it merges into
+    where: dict[str, tuple] = field(default_factory=dict)  # column -> [low, high] or values
+    min_group_size: int = DEFAULT_MIN_GROUP_SIZE
+    date_format: str | None = None  # strftime layout of a date x, e.g. "%d/%m/%Y"
+    table: str | None = None  # SQLite table
+    query: str | None = None  # SQLite read-only query
+    page: str | None = None  # the page name, set by load_manifest (unique within the site)
 
     @property
     def slug(self) -> str:
         """A file-name-safe identifier for the dataset's page."""
-        return slugify(self.name)
+        return self.page or slugify(self.name)
 
     def section(self) -> dict:
         """The manifest entry as plain data (cache keys and results.json use it)."""
@@ -103,6 +135,22 @@ class DatasetSpec:
             "smooth_robust": self.smooth_robust,
             "permutations": self.permutations,
             "engine": self.engine,
+            **{
+                key: value
+                for key, value in (
+                    ("sheet", self.sheet),
+                    ("encoding", self.encoding),
+                    ("decimal", self.decimal),
+                    ("header_row", self.header_row if self.header_row != 1 else None),
+                    ("aliases", dict(sorted(self.aliases.items())) or None),
+                    ("where", {k: list(v) for k, v in sorted(self.where.items())} or None),
+                    ("min_group_size", self.min_group_size),
+                    ("date_format", self.date_format),
+                    ("table", self.table),
+                    ("query", self.query),
+                )
+                if value is not None
+            },
         }
 
 
@@ -117,9 +165,32 @@ class Manifest:
 
 
 def slugify(name: str) -> str:
-    """Return a lower-case ASCII slug; never empty."""
-    slug = re.sub(r"[^a-z0-9]+", "-", name.lower()).strip("-")
-    return slug[:60] or "dataset"
+    """Return a page name for ``name``: letters of any script kept, never empty, portable.
+
+    NFKC-normalised and lower-cased; anything but letters, digits, '-' and '_' becomes '-';
+    at most SLUG_LENGTH characters; a Windows device name or one of the site's own page names
+    gets '-data' appended.
+
+    Examples
+    --------
+    >>> slugify("Qualität"), slugify("Данные по цехам"), slugify("東京 工場"), slugify("Index")
+    ('qualität', 'данные-по-цехам', '東京-工場', 'index-data')
+    """
+    text = unicodedata.normalize("NFKC", name).lower()
+    slug = re.sub(r"[^\w-]+|_", "-", text).strip("-.")
+    slug = re.sub(r"-{2,}", "-", slug)[:SLUG_LENGTH].strip("-") or "dataset"
+    if slug in RESERVED_SLUGS or slug.split(".")[0] in WINDOWS_RESERVED:
+        slug += "-data"
+    return slug
+
+
+def unique_slug(name: str, taken: set[str]) -> str:
+    """Return :func:`slugify` of ``name``, with a short hash of the name when already taken."""
+    slug = slugify(name)
+    if slug not in taken:
+        return slug
+    suffix = hashlib.sha256(name.encode("utf-8")).hexdigest()[:6]
+    return f"{slug[: SLUG_LENGTH - 7]}-{suffix}"
 
 
 def _key_line(text: str, key: str, block: int | None) -> int | None:
@@ -225,7 +296,32 @@ def _project_path(check: _Checker, root: Path, where: str, key: str, raw: str, b
             "copy the file into the project folder",
             block,
         )
-    # A folder is a dataset of Parquet parts (read by the stream or dask engine).
+    if key == "file" and any(c in raw for c in "*?["):
+        import glob
+
+        matches = [Path(p) for p in glob.glob(str(resolved), recursive=True)]
+        base = resolved
+        while any(c in base.as_posix() for c in "*?["):
+            base = base.parent
+        if not _inside(root, base):
+            check.fail(
+                where,
+                key,
+                f"'{raw}' resolves outside the project folder (through a link)",
+                "copy the files into the project folder",
+                block,
+            )
+        if not any(p.is_file() and _inside(root, p) for p in matches):
+            check.fail(
+                where,
+                key,
+                f"'{raw}' matches no file",
+                'check the pattern (e.g. "data/*.csv") or add the files',
+                block,
+            )
+        return resolved
+    # A folder is a dataset of Parquet parts (read by the stream or dask engine) or of
+    # same-shaped text files (read as one table).
     if not (resolved.is_file() or (key == "file" and resolved.is_dir())):
         check.fail(
             where,
@@ -250,10 +346,90 @@ def _check_types(check: _Checker, table: dict, allowed: dict, where: str, block:
             "table of numbers": isinstance(value, dict)
             and all(_is_number(v) for v in value.values()),
             'number or "auto"': _is_number(value) or value == "auto",
+            "text or integer": isinstance(value, str)
+            or (isinstance(value, int) and not isinstance(value, bool)),
+            "table of text": isinstance(value, dict)
+            and all(isinstance(v, str) for v in value.values()),
+            "table of lists": isinstance(value, dict)
+            and all(isinstance(v, list) and v for v in value.values()),
         }[kind]
         if not ok:
             shown = type(value).__name__
             check.fail(where, key, f"must be {kind}, not {shown}", f"write it as {kind}", block)
+
+
+def _reading_keys(check: _Checker, entry: dict, label: str, index: int, measures) -> dict:
+    """Return the validated keys that say how to read the file (sheet, encoding, where...)."""
+    decimal = entry.get("decimal")
+    if decimal is not None and decimal not in (",", "."):
+        check.fail(label, "decimal", f"is '{decimal}'", 'use "," or "."', index)
+    header_row = entry.get("header_row", 1)
+    if not 1 <= header_row <= 10_000:
+        check.fail(
+            label,
+            "header_row",
+            f"is {header_row}",
+            "give the 1-based line of the column names",
+            index,
+        )
+    sheet = entry.get("sheet")
+    if isinstance(sheet, int) and sheet < 0:
+        check.fail(
+            label, "sheet", f"is {sheet}", "count sheets from 0, or give the sheet's name", index
+        )
+    size = entry.get("min_group_size", DEFAULT_MIN_GROUP_SIZE)
+    if not 2 <= size <= 1_000_000:
+        check.fail(
+            label, "min_group_size", f"is {size}", "use a whole number from 2 up, e.g. 5", index
+        )
+    where = {}
+    for column, wanted in entry.get("where", {}).items():
+        if not all(isinstance(w, str | int | float) and not isinstance(w, bool) for w in wanted):
+            check.fail(
+                label,
+                "where",
+                f"for '{column}' holds something other than numbers or text",
+                'write [low, high] or a list of values, e.g. { shift = ["early", "late"] }',
+                index,
+            )
+        where[column] = tuple(wanted)
+    encoding = entry.get("encoding")
+    if encoding is not None:
+        import codecs
+
+        try:
+            codecs.lookup(encoding)
+        except LookupError:
+            check.fail(
+                label,
+                "encoding",
+                f"is '{encoding}', which is not an encoding we know",
+                'use e.g. "utf-8", "windows-1252" or "utf-16"',
+                index,
+            )
+    if entry.get("table") is not None and entry.get("query") is not None:
+        check.fail(label, "query", "is given with table", "give one of table or query", index)
+    query = entry.get("query")
+    if query is not None and not re.match(r"(?is)^\s*(select|with)\b", query):
+        check.fail(
+            label,
+            "query",
+            "is not a SELECT query",
+            "write a query that starts with SELECT (the database is opened read-only)",
+            index,
+        )
+    return {
+        "sheet": sheet,
+        "encoding": encoding,
+        "decimal": decimal,
+        "header_row": header_row,
+        "aliases": {str(k).strip(): v.strip() for k, v in entry.get("aliases", {}).items()},
+        "where": where,
+        "min_group_size": size,
+        "date_format": entry.get("date_format"),
+        "table": entry.get("table"),
+        "query": query,
+    }
 
 
 def load_manifest(project: str | Path) -> Manifest:
@@ -407,6 +583,7 @@ def load_manifest(project: str | Path) -> Manifest:
         engine = entry.get("engine", "auto")
         if engine not in ENGINES:
             check.fail(label, "engine", f"is '{engine}'", "use one of " + ", ".join(ENGINES), index)
+        reading = _reading_keys(check, entry, label, index, measures)
         spec = DatasetSpec(
             name=name,
             file=entry["file"],
@@ -424,15 +601,9 @@ def load_manifest(project: str | Path) -> Manifest:
             smooth_robust=robust,
             permutations=permutations,
             engine=engine,
+            page=unique_slug(name, set(slugs)),
+            **reading,
         )
-        if spec.slug in slugs:
-            check.fail(
-                label,
-                "name",
-                f"makes the same page name as dataset '{slugs[spec.slug]}'",
-                "choose names that differ in letters or digits",
-                index,
-            )
         slugs[spec.slug] = name
         datasets.append(spec)
     return Manifest(root=root, path=path, site=site, datasets=tuple(datasets))

@@ -47,6 +47,7 @@ class DatasetReport:
     measures: int
     warnings: tuple[str, ...] = ()
     reused: bool = False
+    notes: tuple[str, ...] = ()  # what reading did (filters, trimmed labels, decimal commas)
 
 
 @dataclass(frozen=True)
@@ -105,6 +106,16 @@ class CheckReport:
     datasets: tuple[DatasetReport, ...]
     notices: tuple[str, ...] = ()
 
+    def to_json(self) -> dict:
+        """Return the check report as JSON-ready data (paths as text)."""
+        return {
+            "valid": True,
+            "manifest": str(self.manifest),
+            "out": str(self.out),
+            "datasets": [dataclasses.asdict(d) for d in self.datasets],
+            "notices": list(self.notices),
+        }
+
 
 class Timer:
     """Collects seconds spent per named stage."""
@@ -162,6 +173,7 @@ def _dataset_report(table, reused: bool = False) -> DatasetReport:
         measures=len(table.spec.measures),
         warnings=report.warnings,
         reused=reused,
+        notes=report.notes,
     )
 
 
@@ -282,6 +294,7 @@ def _report_from_results(ds: dict, reused: bool) -> DatasetReport:
         measures=len(ds["measures"]),
         warnings=tuple(source.get("warnings", ())),
         reused=reused,
+        notes=tuple(source.get("notes", ())),
     )
 
 
@@ -486,7 +499,9 @@ def build(
         datasets, reports, checksums = [], [], []
         for spec in manifest.datasets:
             with timer.stage("cache"):
-                sha = file_digest(spec.path)
+                from .ingest import source_digest
+
+                sha = source_digest(spec)
                 key = dataset_key(sha, spec, manifest.site)
                 found = cache.load_checked("results", key)
             if found is not None and found[0].get("source", {}).get("sha256") == sha:

@@ -29,6 +29,10 @@ def watched_files(project: str | Path) -> list[Path]:
         return paths
     for spec in manifest.datasets:
         paths.append(spec.path)
+        from .readers.sources import is_pattern, text_parts
+
+        if is_pattern(spec.file) or spec.path.is_dir():
+            paths += text_parts(spec)  # each file of a folder or glob dataset
         if spec.notes_path is not None:
             paths.append(spec.notes_path)
     layouts = root / "layouts"

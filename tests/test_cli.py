@@ -83,9 +83,9 @@ def test_errors_are_one_line_on_stderr_with_non_zero_exit(project, args, words):
     assert words in out.stderr and "Traceback" not in out.stderr
 
 
-def test_new_refuses_non_empty_folder_in_one_line(project):
+def test_new_refuses_to_overwrite_a_manifest_in_one_line(project):
     out = run_cli("new", str(project))
-    assert out.returncode == 2 and out.stderr.count("\n") == 1 and "not empty" in out.stderr
+    assert out.returncode == 2 and out.stderr.count("\n") == 1 and "never overwrites" in out.stderr
 
 
 def test_unexpected_failure_is_one_line_unless_debug(monkeypatch, capsys, project):

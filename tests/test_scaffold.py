@@ -28,13 +28,23 @@ def test_new_data_is_the_same_every_time(tmp_path):
     assert a.read_bytes() == b.read_bytes()
 
 
-def test_new_refuses_a_folder_that_is_not_empty(tmp_path):
+def test_new_in_a_folder_with_other_files_keeps_them(tmp_path):
     folder = tmp_path / "busy"
     folder.mkdir()
     (folder / "thesis.docx").write_bytes(b"keep")
-    with pytest.raises(SitebuildError, match="not empty"):
+    new_project(folder)
+    assert (folder / "thesis.docx").read_bytes() == b"keep"
+    assert (folder / "manifest.toml").is_file()
+
+
+def test_new_never_overwrites_a_manifest(tmp_path):
+    folder = tmp_path / "busy"
+    folder.mkdir()
+    (folder / "manifest.toml").write_text("# mine\n")
+    with pytest.raises(SitebuildError, match="never overwrites"):
         new_project(folder)
-    assert sorted(p.name for p in folder.iterdir()) == ["thesis.docx"]
+    assert (folder / "manifest.toml").read_text() == "# mine\n"
+    assert sorted(p.name for p in folder.iterdir()) == ["manifest.toml"]
 
 
 def test_new_accepts_an_empty_folder(tmp_path):

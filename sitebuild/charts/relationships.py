@@ -249,3 +249,23 @@ def scatter_with_smooths(
         )
     spec = {"width": "container", "height": 300, "datasets": datasets, "layer": layers}
     return themed(spec)
+
+
+def with_date_axis(spec: dict, origin_ms: int) -> dict:
+    """Return a scatter spec whose x (days since ``origin_ms``) is drawn as a date axis.
+
+    The numbers stay days (smooths and slopes are computed on them); each layer turns them
+    into milliseconds since 1970 for Vega-Lite's temporal scale.
+    """
+    when = {"calculate": f"{int(origin_ms)} + datum.x * 86400000", "as": "when"}
+    for layer in spec.get("layer", []):
+        encoding = layer.get("encoding", {})
+        if "x" not in encoding:
+            continue
+        layer["transform"] = [when, *layer.get("transform", [])]
+        title = encoding["x"].get("title")
+        encoding["x"] = {"field": "when", "type": "temporal", "title": title}
+        for tip in encoding.get("tooltip", []):
+            if tip.get("field") == "x":
+                tip.update(field="when", type="temporal", format="%Y-%m-%d %H:%M")
+    return spec

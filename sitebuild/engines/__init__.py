@@ -8,6 +8,7 @@ keep a bounded seeded sample of rows for what needs the values themselves.
 
 from __future__ import annotations
 
+from ..errors import SitebuildError
 from ..ingest import Table, engine_for
 from ..ingest import read_table as read_in_memory
 from ..manifest import DatasetSpec
@@ -23,6 +24,14 @@ def read_table(spec: DatasetSpec, rng=None, sha256: str | None = None) -> Table:
     :func:`sitebuild.streaming.source.source_sha256`), saves hashing it a second time.
     """
     engine = engine_for(spec)
+    memory_only = [k for k in ("where", "aliases", "date_format") if getattr(spec, k, None)]
+    if engine != "memory" and memory_only:
+        raise SitebuildError(
+            f"dataset '{spec.name}': {', '.join(memory_only)} "
+            f"{'is' if len(memory_only) == 1 else 'are'} applied by the in-memory engine "
+            f"only, and this dataset is read by the {engine} engine; remove "
+            f'{"it" if len(memory_only) == 1 else "them"} or set engine = "memory".'
+        )
     if engine == "stream":
         from ..streaming.engine import read_streamed
 

@@ -416,6 +416,8 @@ def _pair_record(
         delta = (_num(cd.estimate), _num(cd.ci_low), _num(cd.ci_high))
         if cd.reason:
             reasons["cliffs_delta_ci"] = cd.reason
+            if cd.ci_low is None:  # e.g. complete separation: the reason names both ends
+                reasons["cliffs_delta_ci_low"] = reasons["cliffs_delta_ci_high"] = cd.reason
         if hl.reason:
             reasons["hl_ci"] = hl.reason
     detect = detectable_difference(ma, mb, alpha=settings.alpha, power=0.8)
@@ -587,6 +589,9 @@ def _measure_entry(
         entry = _empty_entry(measure, reason, [], rows_of(list(range(len(groups)))))
         entry["findings"] = findings_mod.measure_findings(entry, settings)
         return entry
+    # Groups under the manifest's min_group_size are shown in the summaries but left out of
+    # every test and headline: a few values give intervals too wide to say anything.
+    smallest = max(2, getattr(spec, "min_group_size", 2))
     for i, s in enumerate(moments_all):
         if s.n < 2:
             excluded.append(
@@ -601,6 +606,17 @@ def _measure_entry(
                     "value": _num(lows[i]),
                 }
             )
+        elif s.n < smallest:
+            excluded.append(
+                {
+                    "group": groups[i],
+                    "n": s.n,
+                    "reason": (
+                        f"only {s.n} values, fewer than min_group_size = {smallest}; the group is "
+                        "shown in the summaries but not tested"
+                    ),
+                }
+            )
         else:
             keep.append(i)
     names = [groups[i] for i in keep]
@@ -609,8 +625,8 @@ def _measure_entry(
     group_rows = rows_of(keep)
     if len(keep) < 2:
         reason = (
-            "fewer than two groups have at least 2 values with some variation, so groups "
-            "cannot be compared for this measure"
+            f"fewer than two groups have at least {smallest} values with some variation "
+            "(min_group_size), so groups cannot be compared for this measure"
         )
         entry = _empty_entry(measure, reason, excluded, group_rows)
         entry["findings"] = findings_mod.measure_findings(entry, settings)

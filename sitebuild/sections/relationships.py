@@ -561,7 +561,11 @@ def compute(table, settings, rng: np.random.Generator, partial: dict | None = No
 
 def charts(dataset: dict, settings) -> list[Chart]:
     """Return the heatmaps (all rows, each group) and one scatter with smooths per measure."""
-    from ..charts.relationships import MAX_GROUP_BANDS, correlation_heatmap, scatter_with_smooths
+    from ..charts.relationships import (
+        MAX_GROUP_BANDS,
+        correlation_heatmap,
+        scatter_with_smooths,
+    )
 
     info = dataset.get("relationship_columns")
     if not info:
@@ -620,11 +624,21 @@ def charts(dataset: dict, settings) -> list[Chart]:
                         if s.get("fallback")
                     )
                 ),
-                spec=scatter_with_smooths(scatter, smooths, line, info["groups"]),
+                spec=_drawn_on_time(
+                    scatter_with_smooths(scatter, smooths, line, info["groups"]), dataset
+                ),
                 table="rel-lines",
             )
         )
     return out
+
+
+def _drawn_on_time(spec: dict, dataset: dict) -> dict:
+    """Return ``spec`` with a date axis when x holds dates (source.x_time), else unchanged."""
+    from ..charts.relationships import with_date_axis
+
+    x_time = dataset.get("source", {}).get("x_time")
+    return with_date_axis(spec, x_time["origin_ms"]) if x_time else spec
 
 
 CURVED_LINE_NOTE = "curved: a single slope does not describe this relationship (see above)"
@@ -738,6 +752,12 @@ def tables(dataset: dict, settings) -> list[DataTable]:
                 caption=(
                     f"Least-squares lines with {round(100 * settings.confidence)}% t intervals for "
                     "the slope."
+                    + (
+                        f" '{info['x']}' holds dates: slopes are per day, the intercept is the "
+                        f"value on {dataset['source']['x_time']['origin']}."
+                        if dataset.get("source", {}).get("x_time")
+                        else ""
+                    )
                 ),
             )
         )
