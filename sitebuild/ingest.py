@@ -19,9 +19,8 @@ import numpy as np
 from .cache import file_sha256
 from .errors import SitebuildError
 from .manifest import DatasetSpec
+from .readers.delimited import DELIMITERS, MISSING_TOKENS, sniff_delimiter  # noqa: F401 (re-exported)
 
-MISSING_TOKENS = ("", "NA", "NaN", "nan", "null", "NULL", "Null", "n/a", "N/A", "na", "-", "None")
-DELIMITERS = (",", ";", "\t", "|")
 TEXT_SUFFIXES = (".csv", ".tsv", ".txt")
 PARQUET_SUFFIXES = (".parquet", ".pq")
 JSONL_SUFFIXES = (".jsonl", ".ndjson")
@@ -180,28 +179,6 @@ def _decode_head(path: Path, raw: bytes, shown: str | None = None) -> tuple[str,
         )
     text, encoding, warnings = decode(raw, shown or path.name)
     return encoding, text, warnings
-
-
-def sniff_delimiter(head: str, suffix: str) -> str:
-    """Return the delimiter (comma, semicolon, tab, pipe) that splits the head most consistently."""
-    lines = [line for line in head.splitlines()[:50] if line.strip()]
-    if not lines:
-        return "\t" if suffix == ".tsv" else ","
-    if len(lines) > 1 and not head.endswith("\n"):
-        lines = lines[:-1]  # the last line may be cut short by the head's end
-    best, best_score = None, (0, 0)
-    for delimiter in DELIMITERS:
-        rows = list(csv.reader(io.StringIO("\n".join(lines)), delimiter=delimiter))
-        counts = [len(r) for r in rows]
-        if not counts or counts[0] < 2:
-            continue
-        consistent = sum(c == counts[0] for c in counts)
-        score = (consistent, counts[0])
-        if score > best_score:
-            best, best_score = delimiter, score
-    if best is None:
-        return "\t" if suffix == ".tsv" else ","
-    return best
 
 
 def _needed(spec: DatasetSpec) -> list[str]:
@@ -637,17 +614,14 @@ def memory_row_limit(columns: int) -> int:
 STREAM_BYTES = 1 << 30  # a CSV/TSV or Parquet file larger than this is streamed by default
 
 
-def source_digest(spec: DatasetSpec) -> str:
-    """Return the SHA-256 results.json records for ``spec``'s data: of the file, or of the
-    (name, hash) list of a folder or glob of text files or of Parquet parts."""
+def memory_digest(spec: DatasetSpec) -> str:
+    """Return the SHA-256 results.json records for data the memory engine reads: of the file,
+    or of the (name, hash) list of a folder or glob of text files (see
+    :func:`sitebuild.engines.source_digest` for every engine)."""
     from .readers import sources
 
     if sources.is_pattern(spec.file) or (spec.path.is_dir() and sources.handles(spec)):
         return sources.digest(spec)
-    if spec.path.is_dir():
-        from .streaming.source import source_sha256
-
-        return source_sha256(spec.path)
     return file_sha256(spec.path)
 
 
@@ -750,7 +724,7 @@ def read_table(
             warnings = [*warnings, f"column '{name}' has no values (all {count:,} are missing)."]
     report = IngestReport(
         file=spec.file,
-        sha256=sha256 or source_digest(spec),
+        sha256=sha256 or memory_digest(spec),
         rows_read=rows_read,
         rows_used=rows_read - dropped,
         rows_dropped=dropped,

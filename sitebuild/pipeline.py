@@ -499,7 +499,7 @@ def build(
         datasets, reports, checksums = [], [], []
         for spec in manifest.datasets:
             with timer.stage("cache"):
-                from .ingest import source_digest
+                from .engines import source_digest
 
                 sha = source_digest(spec)
                 key = dataset_key(sha, spec, manifest.site)

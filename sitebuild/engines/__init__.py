@@ -9,7 +9,7 @@ keep a bounded seeded sample of rows for what needs the values themselves.
 from __future__ import annotations
 
 from ..errors import SitebuildError
-from ..ingest import Table, engine_for
+from ..ingest import Table, engine_for, memory_digest
 from ..ingest import read_table as read_in_memory
 from ..manifest import DatasetSpec
 
@@ -41,3 +41,13 @@ def read_table(spec: DatasetSpec, rng=None, sha256: str | None = None) -> Table:
 
         return read_with_dask(spec, rng, sha256=sha256)
     return read_in_memory(spec, rng, sha256=sha256)
+
+
+def source_digest(spec: DatasetSpec) -> str:
+    """Return the SHA-256 results.json records for ``spec``'s data, whatever its engine: of the
+    file, of a folder or glob of text files, or of a folder's Parquet parts."""
+    if spec.path.is_dir() and engine_for(spec) != "memory":
+        from ..streaming.source import source_sha256
+
+        return source_sha256(spec.path)
+    return memory_digest(spec)

@@ -113,7 +113,7 @@ def read_text(spec, raw: bytes, shown: str, suffix: str):
     """Return (frame of text columns, encoding, delimiter, warnings) from a text file's bytes."""
     import pandas as pd
 
-    from ..ingest import MISSING_TOKENS, sniff_delimiter
+    from .delimited import MISSING_TOKENS, sniff_delimiter
 
     if not raw.strip():
         raise SitebuildError(
