@@ -112,6 +112,43 @@ def test_ancova_matches_statsmodels_on_seeded_confounded_data():
     _check_against_statsmodels(_confounded())
 
 
+def test_curved_adjustment_matches_statsmodels_quadratic():
+    # Source: statsmodels OLS ``y ~ C(g) + x + I(x**2)`` on seeded data with an inverted-U
+    # response; adjusted means are predictions at the overall mean of x.
+    rng = np.random.default_rng(7)
+    frames = []
+    for name, centre, shift in (("a", 20.0, 0.0), ("b", 24.0, 6.0), ("c", 22.0, -3.0)):
+        x = rng.normal(centre, 2.5, 70)
+        y = 80 - 1.0 * (x - 23.0) ** 2 + shift + rng.normal(0, 3.0, 70)
+        frames.append(pd.DataFrame({"g": name, "x": x, "y": y}))
+    df = pd.concat(frames, ignore_index=True)
+    names = sorted(df["g"].unique())
+    c = float(df["x"].mean())
+    groups = [
+        XYMoments.of(df.loc[df.g == n, "x"].to_numpy(), df.loc[df.g == n, "y"].to_numpy(), 2, c)
+        for n in names
+    ]
+    result = ancova(groups, at=(c, 0.0))
+    fit = sm_formula.ols("y ~ C(g) + x + I(x**2)", data=df).fit()
+    assert result.df == int(fit.df_resid)
+    assert result.residual_sd == pytest.approx(np.sqrt(fit.mse_resid), rel=REL)
+    pred = fit.get_prediction(pd.DataFrame({"g": names, "x": c})).summary_frame(alpha=0.05)
+    for i, g in enumerate(result.groups):
+        assert g.adjusted == pytest.approx(pred["mean"][i], rel=REL)
+        assert g.se == pytest.approx(pred["mean_se"][i], rel=REL)
+    b = result.pairs[1]  # a − c
+    test = fit.t_test(f"C(g)[T.{names[2]}] = 0")
+    assert -b.difference == pytest.approx(float(test.effect[0]), rel=REL)
+    assert b.se == pytest.approx(float(test.sd[0, 0]), rel=REL)
+    table = sm_anova.anova_lm(fit, typ=2)
+    assert result.group_f == pytest.approx(table.loc["C(g)", "F"], rel=REL)
+    # The interaction of group with both covariate terms, as one extra-sum-of-squares test.
+    full = sm_formula.ols("y ~ C(g) * (x + I(x**2))", data=df).fit()
+    compare = sm_anova.anova_lm(fit, full)
+    assert result.slopes.statistic == pytest.approx(compare["F"][1], rel=REL)
+    assert result.slopes.pvalue == pytest.approx(compare["Pr(>F)"][1], rel=REL)
+
+
 def test_confounded_raw_gap_shrinks_at_equal_x():
     # The invented data put a true shift of 2.0 between b and a, but b's x is 2 higher, so
     # its raw gap is about 2 + 7.5 × 2 = 17; at equal x the gap returns to about 2.
@@ -135,7 +172,7 @@ def test_moments_merged_from_batches_give_the_same_answer():
         piece = CoMoments.of(x[part], y[part], codes[part], len(names), pivots)
         merged = merged.merge(piece)
     streamed = [
-        XYMoments(
+        XYMoments.line(
             int(merged.n[i]),
             pivots[0] + float(merged.mean_a[i]),
             pivots[1] + float(merged.mean_b[i]),

@@ -16,29 +16,51 @@ import numpy as np
 from scipy import stats
 
 
-@dataclass(frozen=True)
+@dataclass(frozen=True, eq=False)
 class XYMoments:
-    """One group's sufficient statistics for a straight line of y on x.
+    """One group's sufficient statistics for a line (or curve) of y on x.
 
-    ``sxx``, ``syy`` and ``sxy`` are centred sums Σ(x − x̄)², Σ(y − ȳ)², Σ(x − x̄)(y − ȳ)
-    over the rows where both x and y are present; ``x_low``/``x_high`` the range of x there.
+    ``mean`` holds the means of the covariate columns z (x, and (x − c)² for a curve) then y;
+    ``cross`` the centred sums of squares and cross-products of those columns, over the rows
+    where both x and y are present; ``x_low``/``x_high`` the range of x there.
     """
 
     n: int
-    mean_x: float
-    mean_y: float
-    sxx: float
-    syy: float
-    sxy: float
+    mean: np.ndarray  # shape (p + 1,): covariates, then y
+    cross: np.ndarray  # shape (p + 1, p + 1)
     x_low: float = math.nan
     x_high: float = math.nan
 
     @classmethod
-    def of(cls, x: np.ndarray, y: np.ndarray) -> XYMoments:
+    def line(
+        cls,
+        n: int,
+        mean_x: float,
+        mean_y: float,
+        sxx: float,
+        syy: float,
+        sxy: float,
+        x_low: float = math.nan,
+        x_high: float = math.nan,
+    ) -> XYMoments:
+        """Return straight-line moments from a count, two means and three centred sums
+        (what the streamed co-moments hold)."""
+        return cls(
+            int(n),
+            np.array([mean_x, mean_y], dtype=float),
+            np.array([[sxx, sxy], [sxy, syy]], dtype=float),
+            x_low,
+            x_high,
+        )
+
+    @classmethod
+    def of(cls, x: np.ndarray, y: np.ndarray, degree: int = 1, centre: float = 0.0) -> XYMoments:
         """Return the moments of paired arrays (rows with a NaN in either are left out).
 
-        Two passes: means first, then centred sums, so a large common offset in x (dates as
-        day numbers, say) costs no precision.
+        ``degree`` 2 adds the covariate (x − centre)²; every group must use the same
+        ``centre`` (the overall mean of x is a good one: it keeps the squares small). Two
+        passes: means first, then centred sums, so a large common offset in x (dates as day
+        numbers, say) costs no precision.
 
         Examples
         --------
@@ -49,24 +71,37 @@ class XYMoments:
         y = np.asarray(y, dtype=float)
         ok = ~(np.isnan(x) | np.isnan(y))
         x, y = x[ok], y[ok]
+        columns = [x] if degree == 1 else [x, (x - centre) ** 2]
+        data = np.column_stack([*columns, y]) if x.size else np.zeros((0, degree + 1))
         if x.size == 0:
-            return cls(0, math.nan, math.nan, 0.0, 0.0, 0.0)
-        mx, my = float(np.mean(x)), float(np.mean(y))
-        dx, dy = x - mx, y - my
+            p = degree + 1
+            return cls(0, np.full(p, math.nan), np.zeros((p, p)))
+        mean = data.mean(axis=0)
+        dev = data - mean
         # Correct the means by the mean deviation (a second pass, as in sitebuild.streaming).
-        cx, cy = float(np.mean(dx)), float(np.mean(dy))
-        mx, my = mx + cx, my + cy
-        dx, dy = dx - cx, dy - cy
-        return cls(
-            n=int(x.size),
-            mean_x=mx,
-            mean_y=my,
-            sxx=float(np.dot(dx, dx)),
-            syy=float(np.dot(dy, dy)),
-            sxy=float(np.dot(dx, dy)),
-            x_low=float(np.min(x)),
-            x_high=float(np.max(x)),
-        )
+        shift = dev.mean(axis=0)
+        mean, dev = mean + shift, dev - shift
+        return cls(int(x.size), mean, dev.T @ dev, float(np.min(x)), float(np.max(x)))
+
+    @property
+    def sxx(self) -> float:
+        return float(self.cross[0, 0])
+
+    @property
+    def sxy(self) -> float:
+        return float(self.cross[0, -1])
+
+    @property
+    def syy(self) -> float:
+        return float(self.cross[-1, -1])
+
+    @property
+    def mean_x(self) -> float:
+        return float(self.mean[0])
+
+    @property
+    def mean_y(self) -> float:
+        return float(self.mean[-1])
 
 
 @dataclass(frozen=True)
@@ -154,16 +189,38 @@ def _f_p(statistic: float, df1: float, df2: float) -> float:
     return float(stats.f.sf(statistic, df1, df2))
 
 
+def _fit(cross: np.ndarray) -> tuple[np.ndarray, float] | None:
+    """Return (coefficients of y on the covariates, residual sum of squares) from a centred
+    cross-product matrix, or None when the covariates do not vary enough to fit."""
+    szz, szy = cross[:-1, :-1], cross[:-1, -1]
+    if not np.all(np.diag(szz) > 0):
+        return None
+    # Scale to unit diagonal before solving: x and (x − c)² differ in size by orders.
+    d = np.sqrt(np.diag(szz))
+    scaled = szz / np.outer(d, d)
+    if np.linalg.cond(scaled) > 1e12:
+        return None
+    coef = np.linalg.solve(scaled, szy / d) / d
+    return coef, max(float(cross[-1, -1] - coef @ szy), 0.0)
+
+
+def _within(groups: Sequence[XYMoments]) -> np.ndarray:
+    present = [g for g in groups if g.n > 0]
+    return sum((g.cross for g in present), np.zeros_like(present[0].cross))
+
+
 def slope_check(groups: Sequence[XYMoments], confidence: float = 0.95) -> SlopeCheck:
     """Return the group × x interaction F test and each group's own slope, from moments.
 
     Notes
     -----
-    Separate slopes b_g = Sxy_g / Sxx_g leave SSE_sep = Σ (Syy_g − Sxy_g² / Sxx_g) on
-    N − k − s degrees of freedom (s groups with spread in x). The common slope leaves
-    SSE_common = W_yy − W_xy² / W_xx (W the within-group sums). F = [(SSE_common − SSE_sep) /
-    (s − 1)] / [SSE_sep / (N − k − s)], the extra-sum-of-squares test of the interaction term
-    in ``y ~ C(g) * x``. A group's slope has standard error √(MSE_sep / Sxx_g).
+    Separate fits per group (coefficients b_g = S_zz,g⁻¹ S_zy,g) leave
+    SSE_sep = Σ (S_yy,g − b_g' S_zy,g) on N − k − p·s degrees of freedom (s groups whose
+    covariates vary, p covariates). The common fit leaves SSE_common = W_yy − b' W_zy (W the
+    within-group sums). F = [(SSE_common − SSE_sep) / (p (s − 1))] / [SSE_sep / (N − k − p s)],
+    the extra-sum-of-squares test of the interaction terms in ``y ~ C(g) * x``. A group's
+    slope (its first coefficient: for a curve in (x − c)², the slope at x = c) has standard
+    error √(MSE_sep · [S_zz,g⁻¹]₁₁).
 
     References
     ----------
@@ -177,28 +234,29 @@ def slope_check(groups: Sequence[XYMoments], confidence: float = 0.95) -> SlopeC
     >>> slope_check([a, b]).pvalue < 0.001
     True
     """
-    with_x = [g for g in groups if g.n > 0 and g.sxx > 0]
-    big_n = sum(g.n for g in groups if g.n > 0)
-    k = sum(1 for g in groups if g.n > 0)
-    s = len(with_x)
-    wxx = sum(g.sxx for g in groups if g.n > 0)
-    wxy = sum(g.sxy for g in groups if g.n > 0)
-    wyy = sum(g.syy for g in groups if g.n > 0)
-    sse_common = wyy - wxy * wxy / wxx if wxx > 0 else math.nan
-    sse_sep = sum(g.syy for g in groups if g.n > 0) - sum(g.sxy * g.sxy / g.sxx for g in with_x)
-    sse_sep = max(sse_sep, 0.0)
-    df2 = big_n - k - s
-    df1 = s - 1
+    present = [g for g in groups if g.n > 0]
+    big_n = sum(g.n for g in present)
+    k = len(present)
+    p = present[0].cross.shape[0] - 1 if present else 1
+    fits = [_fit(g.cross) if g.n > p else None for g in groups]
+    with_fit = [f for f, g in zip(fits, groups, strict=True) if f is not None and g.n > 0]
+    s = len(with_fit)
+    common = _fit(_within(groups)) if present else None
+    sse_sep = sum(g.syy for g, f in zip(groups, fits, strict=True) if g.n > 0 and f is None)
+    sse_sep += sum(f[1] for f in with_fit)
+    df2 = big_n - k - p * s
+    df1 = p * (s - 1)
     mse_sep = sse_sep / df2 if df2 > 0 else math.nan
-    if df1 > 0 and df2 > 0 and mse_sep > 0:
-        statistic = max(sse_common - sse_sep, 0.0) / df1 / mse_sep
+    if common is not None and df1 > 0 and df2 > 0 and mse_sep > 0:
+        statistic = max(common[1] - sse_sep, 0.0) / df1 / mse_sep
     else:
         statistic = math.nan
     slopes, ses, lows, highs = [], [], [], []
-    for g in groups:
-        if g.n > 0 and g.sxx > 0:
-            b = g.sxy / g.sxx
-            se = math.sqrt(mse_sep / g.sxx) if math.isfinite(mse_sep) else math.nan
+    for g, f in zip(groups, fits, strict=True):
+        if f is not None and g.n > 0 and math.isfinite(mse_sep):
+            b = float(f[0][0])
+            inverse = np.linalg.inv(g.cross[:-1, :-1])
+            se = math.sqrt(mse_sep * float(inverse[0, 0]))
             low, high = _t_interval(b, se, df2, confidence)
         else:
             b = se = low = high = math.nan
@@ -222,25 +280,31 @@ def ancova(
     groups: Sequence[XYMoments],
     confidence: float = 0.95,
     pairs: Sequence[tuple[int, int]] | None = None,
+    at: Sequence[float] | None = None,
 ) -> AncovaResult:
     """Return the common-slope analysis of covariance of y on group and x, from moments.
 
-    ``pairs`` lists the (a, b) group indices to compare (default: every pair a < b). Groups
-    with no rows keep their place with NaN estimates.
+    ``pairs`` lists the (a, b) group indices to compare (default: every pair a < b). ``at``
+    is the covariate point where the adjusted means are evaluated (default: the overall
+    means of the covariates; for a curve in (x − c)² with c the overall mean of x, pass
+    (c, 0)). Groups with no rows keep their place with NaN estimates.
 
     Notes
     -----
-    With W_xx = Σ Sxx_g, W_xy = Σ Sxy_g, W_yy = Σ Syy_g (within-group sums):
+    With W the within-group sums of the centred cross-products of the covariates z and y:
 
-    - common slope b = W_xy / W_xx; SSE = W_yy − b W_xy on ν = N − k − 1 degrees of freedom,
-      MSE = SSE / ν; se(b) = √(MSE / W_xx);
-    - adjusted mean of group g at the overall mean x̄ of x:
-      ȳ_g − b (x̄_g − x̄), variance MSE [1/n_g + (x̄_g − x̄)² / W_xx];
-    - difference of two adjusted means: (ȳ_a − ȳ_b) − b (x̄_a − x̄_b), variance
-      MSE [1/n_a + 1/n_b + (x̄_a − x̄_b)² / W_xx], Student's t on ν degrees of freedom;
-    - group F at equal x (type II): [(SSE_x − SSE) / (k − 1)] / MSE, where SSE_x =
-      T_yy − T_xy² / T_xx is the residual of y on x alone (T the total sums);
-    - share of within-group variation x accounts for: W_xy² / (W_xx W_yy) (partial R² of x).
+    - common coefficients b = W_zz⁻¹ W_zy; SSE = W_yy − b' W_zy on ν = N − k − p degrees of
+      freedom, MSE = SSE / ν; se(b_1) = √(MSE [W_zz⁻¹]₁₁);
+    - adjusted mean of group g at z*: ȳ_g + b' (z* − z̄_g), variance
+      MSE [1/n_g + d' W_zz⁻¹ d] with d = z* − z̄_g;
+    - difference of two adjusted means: (ȳ_a − ȳ_b) − b' (z̄_a − z̄_b), variance
+      MSE [1/n_a + 1/n_b + d' W_zz⁻¹ d] with d = z̄_a − z̄_b, Student's t on ν degrees of freedom
+      (the same at any z*: the fitted lines are parallel);
+    - group F at equal x (type II): [(SSE_z − SSE) / (k − 1)] / MSE, where SSE_z is the
+      residual of y on the covariates alone (from the total sums, within plus between);
+    - share of within-group variation the covariates account for: 1 − SSE / W_yy.
+
+    With one covariate (p = 1) this is the textbook analysis of covariance with b = W_xy / W_xx.
 
     References
     ----------
@@ -257,36 +321,42 @@ def ancova(
     present = [g for g in groups if g.n > 0]
     k = len(present)
     big_n = sum(g.n for g in present)
-    wxx = sum(g.sxx for g in present)
-    wxy = sum(g.sxy for g in present)
-    wyy = sum(g.syy for g in present)
-    x_mean = sum(g.n * g.mean_x for g in present) / big_n if big_n else math.nan
-    y_mean = sum(g.n * g.mean_y for g in present) / big_n if big_n else math.nan
-    df = big_n - k - 1
-    slope = wxy / wxx if wxx > 0 else math.nan
-    sse = max(wyy - slope * wxy, 0.0) if wxx > 0 else math.nan
-    mse = sse / df if df > 0 else math.nan
-    slope_se = math.sqrt(mse / wxx) if wxx > 0 and math.isfinite(mse) else math.nan
-    slope_low, slope_high = _t_interval(slope, slope_se, df, confidence)
-    # Total sums: within plus between (centred on the overall means).
-    txx = wxx + sum(g.n * (g.mean_x - x_mean) ** 2 for g in present)
-    txy = wxy + sum(g.n * (g.mean_x - x_mean) * (g.mean_y - y_mean) for g in present)
-    tyy = wyy + sum(g.n * (g.mean_y - y_mean) ** 2 for g in present)
-    sse_x = tyy - txy * txy / txx if txx > 0 else math.nan
-    if k > 1 and mse > 0:
-        group_f = max(sse_x - sse, 0.0) / (k - 1) / mse
+    p = present[0].cross.shape[0] - 1 if present else 1
+    nan = math.nan
+    within = _within(groups) if present else np.full((p + 1, p + 1), nan)
+    grand = sum((g.n * g.mean for g in present), np.zeros(p + 1)) / big_n if big_n else None
+    df = big_n - k - p
+    fit = _fit(within) if present else None
+    if fit is not None and df > 0:
+        coef, sse = fit
+        mse = sse / df
+        inverse = np.linalg.inv(within[:-1, :-1])
     else:
-        group_f = math.nan
+        coef, sse, mse, inverse = np.full(p, nan), nan, nan, np.full((p, p), nan)
+    slope = float(coef[0])
+    slope_se = math.sqrt(mse * inverse[0, 0]) if math.isfinite(mse) else nan
+    slope_low, slope_high = _t_interval(slope, slope_se, df, confidence)
+    total = within.copy()
+    for g in present:
+        d = g.mean - grand
+        total = total + g.n * np.outer(d, d)
+    reduced = _fit(total) if present else None
+    if k > 1 and mse > 0 and reduced is not None:
+        group_f = max(reduced[1] - sse, 0.0) / (k - 1) / mse
+    else:
+        group_f = nan
+    point = np.asarray(at, dtype=float) if at is not None else (grand[:-1] if big_n else None)
     adjusted = []
     for g in groups:
-        if g.n == 0:
-            nan = math.nan
+        if g.n == 0 or point is None:
             adjusted.append(AdjustedMean(0, nan, nan, nan, nan, nan, nan, nan, nan, False))
             continue
-        adj = g.mean_y - slope * (g.mean_x - x_mean)
-        se = math.sqrt(mse * (1 / g.n + (g.mean_x - x_mean) ** 2 / wxx)) if wxx > 0 else math.nan
+        d = point - g.mean[:-1]
+        adj = g.mean_y + float(coef @ d)
+        se = math.sqrt(mse * (1 / g.n + float(d @ inverse @ d))) if math.isfinite(mse) else nan
         low, high = _t_interval(adj, se, df, confidence)
-        outside = bool(math.isfinite(g.x_low) and not (g.x_low <= x_mean <= g.x_high))
+        x_at = _x_at(at, grand)
+        outside = bool(math.isfinite(g.x_low) and not (g.x_low <= x_at <= g.x_high))
         adjusted.append(
             AdjustedMean(g.n, g.mean_y, g.mean_x, adj, se, low, high, g.x_low, g.x_high, outside)
         )
@@ -295,15 +365,14 @@ def ancova(
     out_pairs = []
     for i, j in pairs:
         ga, gb = groups[i], groups[j]
-        raw = ga.mean_y - gb.mean_y
-        if ga.n == 0 or gb.n == 0 or not wxx > 0:
-            nan = math.nan
+        raw = ga.mean_y - gb.mean_y if ga.n and gb.n else nan
+        if ga.n == 0 or gb.n == 0 or not math.isfinite(mse):
             out_pairs.append(AdjustedDifference(i, j, raw, nan, nan, nan, nan, nan, nan))
             continue
-        dx = ga.mean_x - gb.mean_x
-        diff = raw - slope * dx
-        se = math.sqrt(mse * (1 / ga.n + 1 / gb.n + dx * dx / wxx))
-        statistic = diff / se if se > 0 else math.nan
+        d = ga.mean[:-1] - gb.mean[:-1]
+        diff = raw - float(coef @ d)
+        se = math.sqrt(mse * (1 / ga.n + 1 / gb.n + float(d @ inverse @ d)))
+        statistic = diff / se if se > 0 else nan
         low, high = _t_interval(diff, se, df, confidence)
         out_pairs.append(
             AdjustedDifference(i, j, raw, diff, se, low, high, statistic, _t_p(statistic, df))
@@ -311,16 +380,17 @@ def ancova(
     lows = [g.x_low for g in present if math.isfinite(g.x_low)]
     highs = [g.x_high for g in present if math.isfinite(g.x_high)]
     overlap = bool(lows and max(lows) < min(highs))
+    wyy = float(within[-1, -1])
     return AncovaResult(
         slope=slope,
         slope_se=slope_se,
         slope_low=slope_low,
         slope_high=slope_high,
         df=int(df),
-        residual_sd=math.sqrt(mse) if mse >= 0 else math.nan,
-        within_sd=math.sqrt(wyy / (big_n - k)) if big_n > k else math.nan,
-        x_share=wxy * wxy / (wxx * wyy) if wxx > 0 and wyy > 0 else math.nan,
-        x_mean=x_mean,
+        residual_sd=math.sqrt(mse) if mse >= 0 else nan,
+        within_sd=math.sqrt(wyy / (big_n - k)) if big_n > k else nan,
+        x_share=1 - sse / wyy if wyy > 0 and math.isfinite(sse) else nan,
+        x_mean=_x_at(at, grand) if big_n else nan,
         group_f=group_f,
         group_df1=k - 1,
         group_p=_f_p(group_f, k - 1, df),
@@ -330,3 +400,8 @@ def ancova(
         overlap=overlap,
         confidence=confidence,
     )
+
+
+def _x_at(at, grand) -> float:
+    """The value of x where adjusted means are evaluated (the first covariate's point)."""
+    return float(at[0]) if at is not None else float(grand[0])
