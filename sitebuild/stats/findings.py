@@ -142,11 +142,18 @@ def measure_unit(measure: str) -> str:
 
 
 def _difference_sentence(
-    r: dict, confidence: float, decimals: int | None, unit: str = "", sds: dict | None = None
+    r: dict,
+    confidence: float,
+    decimals: int | None,
+    unit: str = "",
+    sds: dict | None = None,
+    better: str | None = None,
 ) -> str:
     est, lo, hi = r.get("estimate"), r.get("ci_low"), r.get("ci_high")
     higher = (est or 0) > 0
     word = "higher" if higher else "lower"
+    if better:  # the manifest says which way is good: better/worse instead of higher/lower
+        word = "better" if higher == (better == "higher") else "worse"
     # The interval is of a − b; said as "lower by", it is shown as the size of the gap.
     if lo is not None and hi is not None and not higher:
         lo, hi = -hi, -lo
@@ -234,6 +241,14 @@ def measure_findings(entry: dict, settings) -> list[str]:
     )
     more = f", and {len(rows) - MAX_GROUPS_NAMED} more" if len(rows) > MAX_GROUPS_NAMED else ""
     out.append(f"By {centre}, highest first: {named}{more}.")
+    better = entry.get("better")
+    if better and len(rows) > 1:
+        best, worst = (rows[0], rows[-1]) if better == "higher" else (rows[-1], rows[0])
+        out.append(
+            f"{better.capitalize()} is better for '{measure}': best '{best['group']}' "
+            f"({format_value(best[centre], decimals)}), worst '{worst['group']}' "
+            f"({format_value(worst[centre], decimals)}) by {centre}."
+        )
     skewed = [r for r in rows if r.get("skewness") is not None and abs(r["skewness"]) > SKEW_NOTE]
     if centre == "mean" and skewed:
         worst = max(skewed, key=lambda r: abs(r["skewness"]))
@@ -302,7 +317,9 @@ def measure_findings(entry: dict, settings) -> list[str]:
                 f"Comparing {family.get('description')}: "
                 + ("they differ." if differ else f"no difference at alpha = {alpha:g}.")
             )
-            out.extend(_difference_sentence(r, confidence, decimals, unit, sds) for r in differ)
+            out.extend(
+                _difference_sentence(r, confidence, decimals, unit, sds, better) for r in differ
+            )
         elif differ:
             out.append(
                 f"Comparing {family.get('description')}, with p-values adjusted by "
@@ -310,7 +327,7 @@ def measure_findings(entry: dict, settings) -> list[str]:
                 f"{'comparison shows' if len(pairs) == 1 else 'comparisons show'} a difference."
             )
             for r in differ[:MAX_LISTED]:
-                out.append(_difference_sentence(r, confidence, decimals, unit, sds))
+                out.append(_difference_sentence(r, confidence, decimals, unit, sds, better))
             if len(differ) > MAX_LISTED:
                 out.append(f"{len(differ) - MAX_LISTED} more differences are listed in the table.")
         else:
