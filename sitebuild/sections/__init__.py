@@ -16,7 +16,7 @@ from __future__ import annotations
 
 from dataclasses import dataclass
 
-SECTION_NAMES = ("summaries", "relationships", "comparisons", "adjusted")
+SECTION_NAMES = ("summaries", "relationships", "comparisons", "adjusted", "capability", "trend")
 # Sections that read other sections' results (curve flags, the x-balance check): the pipeline
 # runs them after all the others, with every earlier key in ``partial``.
 READS_RESULTS = frozenset({"adjusted"})
