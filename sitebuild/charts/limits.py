@@ -5,24 +5,25 @@ from __future__ import annotations
 LIMIT_COLOUR = "#b3261e"  # a red that reads on white and in greyscale as dark
 
 
-def limit_layers(groups: list[str], lower, upper, target) -> list[dict]:
-    """Return rule layers for the limits (solid) and target (dashed), one segment per group
-    row so they share the group axis of the chart they are added to."""
+def limit_layers(lower, upper, target) -> list[dict]:
+    """Return rule layers for the limits (solid) and target (dashed), each a vertical line
+    over the chart's whole height (the inherited group axis is overridden)."""
     layers = []
     marks = [("lower limit", lower, None), ("upper limit", upper, None), ("target", target, [5, 3])]
     for kind, value, dash in marks:
         if value is None:
             continue
-        rows = [{"group": g, "limit": value, "kind": kind} for g in groups]
         mark = {"type": "rule", "color": LIMIT_COLOUR, "strokeWidth": 1.5}
         if dash:
             mark["strokeDash"] = dash
         layers.append(
             {
-                "data": {"values": rows},
+                "data": {"values": [{"limit": value, "kind": kind}]},
                 "mark": mark,
                 "encoding": {
                     "x": {"field": "limit", "type": "quantitative"},
+                    "y": {"value": 0},
+                    "y2": {"value": "height"},
                     "tooltip": [
                         {"field": "kind", "title": "Line"},
                         {"field": "limit", "title": "Value"},
@@ -45,5 +46,5 @@ def with_limits(spec: dict, entry: dict | None) -> dict:
     )  # fmt: skip
     if not drawn:
         return spec
-    layers = limit_layers(drawn, entry["lower"], entry["upper"], entry["target"])
+    layers = limit_layers(entry["lower"], entry["upper"], entry["target"])
     return {**spec, "layer": spec["layer"] + layers}

@@ -48,8 +48,10 @@ def _moments_memory(table, x: str, measure: str, degree: int) -> tuple[list[XYMo
     for code in range(len(table.groups)):
         mine = both & (table.codes == code)
         groups.append(XYMoments.of(xs[mine], ys[mine], degree, centre))
-    at = (centre, 0.0) if degree == 2 else None
-    return groups, at
+    # Means are evaluated at the overall means of the covariates: for the curve, averaged over
+    # the x values of all rows together (not at the curve's value at x̄, which would sit at
+    # its peak or trough and move every mean away from the data).
+    return groups, None
 
 
 def _moments_streamed(table, x: str, measure: str) -> list[XYMoments]:
@@ -121,6 +123,13 @@ def _entry(table, measure: str, settings, partial: dict, balance: dict | None) -
         "measure": measure,
         "x": x,
         "model": "curve" if degree == 2 else "straight line",
+        # Where the means are compared: one value of x, or (for the curve) the x values of
+        # all rows together.
+        "evaluated_at": (
+            f"over the '{x}' values of all rows together"
+            if degree == 2
+            else f"at the overall mean of '{x}'"
+        ),
         "curved": curved,
         "approximate": bool(curved and degree == 1),
         "better": spec.better.get(measure),
@@ -288,8 +297,8 @@ def charts(dataset: dict, settings) -> list:
                 id=f"eqx-{mi}-means",
                 title=f"{entry['measure']}: raw means and means at equal {entry['x']}",
                 description=(
-                    f"Each group's raw mean of {entry['measure']} (hollow) and its mean at the "
-                    f"overall mean of {entry['x']} (filled) with a {level} confidence interval."
+                    f"Each group's raw mean of {entry['measure']} (hollow) and its mean "
+                    f"{entry['evaluated_at']} (filled) with a {level} confidence interval."
                 ),
                 spec=draw.raw_and_adjusted(entry, dataset.get("groups", [])),
                 table=f"eqx-{mi}-groups",
@@ -316,7 +325,7 @@ def tables(dataset: dict, settings) -> list[DataTable]:
                     ("x_low", f"Lowest {x}"),
                     ("x_high", f"Highest {x}"),
                     ("mean", "Raw mean"),
-                    ("adjusted", f"Mean at {x} = {entry['x_mean']:.4g}"),
+                    ("adjusted", f"Mean at equal {x}"),
                     ("ci_low", "CI low"),
                     ("ci_high", "CI high"),
                     ("slope", f"Own slope per unit of {x}"),
@@ -325,7 +334,7 @@ def tables(dataset: dict, settings) -> list[DataTable]:
                 ),
                 rows=tuple(dict(g) for g in entry["groups"]),
                 caption=(
-                    f"Means at the overall mean of {x}, from one common "
+                    f"Means {entry['evaluated_at']}, from one common "
                     + ("curve" if entry["model"] == "curve" else "slope")
                     + " for all groups (analysis of covariance). Own slopes are each group's "
                     "separate fit, for the check of equal slopes."

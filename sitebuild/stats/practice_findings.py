@@ -118,20 +118,20 @@ def _ranking(entry: dict, decimals, unit: str) -> str:
     rows = sorted(rows, key=lambda g: -g["adjusted"])
     top, bottom = rows[0], rows[-1]
     better = entry.get("better")
-    x, at = entry["x"], format_num(entry.get("x_mean"))
+    x = entry["x"]
+    where = (
+        f"At {_q(x)} = {format_num(entry.get('x_mean'))} (its overall mean)"
+        if entry.get("model") != "curve"
+        else f"Over the {_q(x)} values of all rows together"
+    )
 
     def shown(g):
         return f"{_q(g['group'])} ({format_value(g['adjusted'], decimals)}{' ' + unit if unit else ''})"
 
     if better is None:
-        return (
-            f"At {_q(x)} = {at} (its overall mean), highest: {shown(top)}; lowest: {shown(bottom)}."
-        )
+        return f"{where}, highest: {shown(top)}; lowest: {shown(bottom)}."
     best, worst = (top, bottom) if better == "higher" else (bottom, top)
-    return (
-        f"At {_q(x)} = {at} (its overall mean), best ({better} is better): {shown(best)}; "
-        f"worst: {shown(worst)}."
-    )
+    return f"{where}, best ({better} is better): {shown(best)}; worst: {shown(worst)}."
 
 
 def adjusted_findings(entry: dict) -> list[str]:
