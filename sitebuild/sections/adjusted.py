@@ -30,7 +30,8 @@ from . import DataTable
 # within-group variation (partial R²; 0.10 sits between the usual "medium" marks of 0.06 and
 # 0.14 for partial eta squared, Cohen 1988: common practice, not a law).
 MATERIAL_SHARE = 0.10
-MAX_PAIRS_GROUPS = 30  # as the comparisons section: above it, no pairwise table
+MAX_PAIRS_GROUPS = 30
+SCALE_LIMIT = 1e75  # as the comparisons section: squares of larger values overflow float64  # as the comparisons section: above it, no pairwise table
 
 
 def _num(value) -> float | None:
@@ -84,6 +85,23 @@ def _moments_streamed(table, x: str, measure: str) -> list[XYMoments]:
     return out
 
 
+def _too_large(table, x: str, measure: str) -> bool:
+    """True when x or the measure holds values whose squares or cross-products overflow."""
+    if table.exact is not None:
+        spans = [table.exact.moments[c] for c in (x, measure)]
+        return any(
+            np.any(np.abs(m.low[np.isfinite(m.low)]) > SCALE_LIMIT)
+            or np.any(np.abs(m.high[np.isfinite(m.high)]) > SCALE_LIMIT)
+            for m in spans
+        )
+    for column in (x, measure):
+        values = table.values(column)
+        values = values[~np.isnan(values)]
+        if values.size and float(np.max(np.abs(values))) > SCALE_LIMIT:
+            return True
+    return False
+
+
 def _curved(partial: dict, x: str, measure: str) -> bool:
     return any(
         r.get("group") is None and r.get("a") == x and r.get("b") == measure and r.get("curved")
@@ -113,7 +131,10 @@ def _entry(table, measure: str, settings, partial: dict, balance: dict | None) -
     curved = _curved(partial, x, measure)
     streamed = table.exact is not None
     degree = 2 if curved and not streamed else 1
-    if streamed:
+    huge = _too_large(table, x, measure)
+    if huge:
+        moments, at = [], None
+    elif streamed:
         moments, at = _moments_streamed(table, x, measure), None
     else:
         moments, at = _moments_memory(table, x, measure, degree)
@@ -139,10 +160,14 @@ def _entry(table, measure: str, settings, partial: dict, balance: dict | None) -
         "adjust_name": METHOD_NAMES[settings.adjust],
     }
     n_total = sum(moments[i].n for i in present)
-    if len(present) < 2 or n_total - len(present) - degree < 2:
+    if huge or len(present) < 2 or n_total - len(present) - degree < 2:
         empty = {
             **base,
-            "reason": "fewer than two groups, or too few rows with both values, to compare them",
+            "reason": (
+                f"values beyond ±{SCALE_LIMIT:g} cannot be squared safely, so they are not compared"
+                if huge
+                else "fewer than two groups, or too few rows with both values, to compare them"
+            ),
             "leads": False,
             "lead_reason": None,
             "groups": [],

@@ -31,10 +31,33 @@ def compute(table, settings, rng: np.random.Generator, partial: dict | None = No
     spec = table.spec
     if not spec.time_unit or not spec.x or spec.x in spec.measures:
         return {}
-    from .adjusted import _moments_memory, _moments_streamed
+    from .adjusted import SCALE_LIMIT, _moments_memory, _moments_streamed, _too_large
 
     out = []
     for measure in spec.measures:
+        if _too_large(table, spec.x, measure):
+            out.append(
+                {
+                    "measure": measure,
+                    "x": spec.x,
+                    "unit": spec.time_unit,
+                    "better": spec.better.get(measure),
+                    "confidence": settings.confidence,
+                    "groups": [],
+                    "differ": {
+                        "statistic": None,
+                        "df1": None,
+                        "df2": None,
+                        "p": None,
+                        "differ": False,
+                    },  # fmt: skip
+                    "findings": [
+                        f"'{measure}' holds values beyond ±{SCALE_LIMIT:g}, whose squares "
+                        "overflow, so no trend is given."
+                    ],
+                }
+            )
+            continue
         if table.exact is not None:
             moments = _moments_streamed(table, spec.x, measure)
         else:
@@ -95,10 +118,12 @@ def findings(entry: dict) -> list[str]:
         return [f"'{measure}' has too few values over time in every group to give a trend."]
 
     def told(g) -> str:
-        return (
-            f"'{g['group']}', by {format_num(abs(g['slope']))}{per} ({level} CI "
-            f"{format_num(g['ci_low'])} to {format_num(g['ci_high'])})"
+        interval = (
+            f" ({level} CI {format_num(g['ci_low'])} to {format_num(g['ci_high'])})"
+            if g["ci_low"] is not None and g["ci_high"] is not None
+            else " (too few values for an interval)"
         )
+        return f"'{g['group']}', by {format_num(abs(g['slope']))}{per}{interval}"
 
     out = []
     rising = max(rows, key=lambda g: g["slope"])
