@@ -67,3 +67,13 @@ def test_time_unit_suggests_the_singular(tmp_path):
         tmp_path, BASE + 'x = "day"\ntime_unit = "days"\n', {"data/lines.csv": CSV_X}
     )
     assert "did you mean 'day'" in message
+
+
+def test_a_label_for_a_group_the_data_lacks_is_warned(tmp_path):
+    from sitebuild.ingest import read_table
+
+    root = write_project(
+        tmp_path / "p", BASE + 'labels = { C = "line three" }\n', {"data/lines.csv": SIMPLE_CSV}
+    )
+    table = read_table(load_manifest(root).datasets[0])
+    assert any("labels names 'C'" in w for w in table.report.warnings)
