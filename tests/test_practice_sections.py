@@ -97,9 +97,11 @@ def test_hydroponic_gap_at_equal_temperature_uses_the_curve_and_matches_statsmod
 
 def test_overview_says_night_orders_are_bigger_and_the_gap_at_equal_size(example_site):
     text = (example_site / "index.html").read_text(encoding="utf-8")
-    assert "Best mean (lower is better): Früh" in text
-    assert "At equal &#39;lines&#39;, &#39;Nacht&#39; is worse than &#39;Früh&#39; by 8.9 s" in text
-    assert "&#39;Nacht&#39; has the higher &#39;lines&#39; (mean 5.14 against 3.6)" in text
+    assert "Best mean: Früh 92.9 s" in text
+    assert "At equal &#39;lines&#39;: &#39;Nacht&#39; worse than &#39;Früh&#39; by 8.9 s" in text
+    assert (
+        "against 37.5 s raw; &#39;Nacht&#39; has higher &#39;lines&#39; (5.14 against 3.6)" in text
+    )
 
 
 def test_labels_name_the_coatings_on_pages_and_csv_but_results_keep_codes(example_site):

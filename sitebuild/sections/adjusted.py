@@ -169,6 +169,7 @@ def _entry(table, measure: str, settings, partial: dict, balance: dict | None) -
                 else "fewer than two groups, or too few rows with both values, to compare them"
             ),
             "leads": False,
+            "differs_in_x": bool(balance and balance.get("differs")),
             "lead_reason": None,
             "groups": [],
             "pairs": [],
@@ -261,6 +262,7 @@ def _entry(table, measure: str, settings, partial: dict, balance: dict | None) -
         **base,
         "reason": None,
         "leads": lead_reason is not None,
+        "differs_in_x": differs_in_x,
         "lead_reason": lead_reason,
         "mode": mode,
         "slope": _num(result.slope),

@@ -442,8 +442,7 @@ def _x_balance_sentence(balance: dict, measure: str) -> str:
         f"{p_phrase(balance['p'])}; mean {format_num(low['mean'])} in '{low['group']}' to "
         f"{format_num(high['mean'])} in '{high['group']}'). If '{balance['x']}' affects "
         f"'{measure}', part of these differences may come from '{balance['x']}' rather than "
-        "from the groups themselves; the comparison at equal "
-        f"'{balance['x']}' on this page gives each gap once '{balance['x']}' is allowed for."
+        "from the groups themselves."
     )
 
 

@@ -11,8 +11,7 @@ MAX_PAIRS_TOLD = 4  # pairs described in sentences; the table holds every pair
 
 ADJUST_CAUTION = (
     "A comparison at equal {x} allows only for {x} as measured, and only in the form fitted; "
-    "other differences between the groups remain, and a gap at equal {x} is still an "
-    "association, not a cause."
+    "other differences between the groups remain and may explain a gap at equal {x}."
 )
 
 
@@ -234,7 +233,7 @@ def adjusted_headline(entry: dict) -> str | None:
     ...      "pairs": [{"a": "a", "b": "b", "raw_difference": -37.5, "difference": -8.9,
     ...                 "ci_low": -14.3, "ci_high": -3.5}]}
     >>> adjusted_headline(e)
-    "At equal 'lines', 'b' is worse than 'a' by 8.9 s (95% CI 3.5 to 14.3), against 37.5 s in the raw means; 'b' has the higher 'lines' (mean 5.1 against 3.6)."
+    "At equal 'lines': 'b' worse than 'a' by 8.9 s (95% CI 3.5 to 14.3), against 37.5 s raw; 'b' has higher 'lines' (5.1 against 3.6)."
     """
     pairs = [
         p
@@ -257,14 +256,11 @@ def adjusted_headline(entry: dict) -> str | None:
     word = direction_word(abs(diff), entry.get("better"))
     interval = _interval(p["ci_low"], p["ci_high"], diff < 0, decimals, entry["confidence"])
     text = (
-        f"At equal {_q(x)}, {_q(first)} is {word} than {_q(second)} by "
+        f"At equal {_q(x)}: {_q(first)} {word} than {_q(second)} by "
         f"{_gap(diff, decimals, unit)} ({interval}), against "
-        f"{_gap(p['raw_difference'], decimals, unit)} in the raw means"
+        f"{_gap(p['raw_difference'], decimals, unit)} raw"
     )
     if xa is not None and xb is not None and xa != xb:
         name, top, bottom = (p["a"], xa, xb) if xa > xb else (p["b"], xb, xa)
-        text += (
-            f"; {_q(name)} has the higher {_q(x)} (mean {format_num(top)} against "
-            f"{format_num(bottom)})"
-        )
+        text += f"; {_q(name)} has higher {_q(x)} ({format_num(top)} against {format_num(bottom)})"
     return text + "."
