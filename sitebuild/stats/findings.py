@@ -252,14 +252,8 @@ def measure_findings(entry: dict, settings) -> list[str]:
     )
     more = f", and {len(rows) - MAX_GROUPS_NAMED} more" if len(rows) > MAX_GROUPS_NAMED else ""
     out.append(f"By {centre}, highest first: {named}{more}.")
+    # The bottom line names the best and worst group; the sentences below say better/worse.
     better = entry.get("better")
-    if better and len(rows) > 1:
-        best, worst = (rows[0], rows[-1]) if better == "higher" else (rows[-1], rows[0])
-        out.append(
-            f"{better.capitalize()} is better for '{measure}': best '{best['group']}' "
-            f"({format_value(best[centre], decimals)}), worst '{worst['group']}' "
-            f"({format_value(worst[centre], decimals)}) by {centre}."
-        )
     # The comparisons section marks a group strongly skewed only beyond sampling noise; rows
     # without that mark (older results) fall back to the plain common-practice limit.
     skewed = [
