@@ -45,6 +45,7 @@ from ..stats.omnibus import kruskal_wallis, one_way_anova, spread_test, welch_an
 from ..stats.pairwise import (
     EXACT_MAX_N,
     Sample,
+    SharedRanks,
     cliffs_delta,
     detectable_difference,
     dominance_counts,
@@ -194,34 +195,11 @@ def residual_skew_check(samples: Sequence[Sample]) -> dict:
     return out
 
 
-class _TieTable:
-    """Counts of globally tied values per group, so a pair's tie term Σ(t³ − t) is cheap."""
-
-    def __init__(self, samples: Sequence[Sample]):
-        pooled = np.concatenate([s.sorted for s in samples])
-        values, counts = np.unique(pooled, return_counts=True)
-        tied = values[counts > 1]
-        self.any = tied.size > 0
-        self.per_group = []
-        if self.any:
-            for s in samples:
-                idx = np.searchsorted(tied, s.sorted)
-                idx = np.minimum(idx, tied.size - 1)
-                hit = tied[idx] == s.sorted
-                self.per_group.append(np.bincount(idx[hit], minlength=tied.size).astype(float))
-
-    def term(self, i: int, j: int) -> float:
-        if not self.any:
-            return 0.0
-        t = self.per_group[i] + self.per_group[j]
-        return float(np.sum(t**3 - t))
-
-
-def _omnibus(samples: list[Sample], ranks: list[np.ndarray]) -> tuple[list[dict], dict]:
+def _omnibus(samples: list[Sample], shared: SharedRanks) -> tuple[list[dict], dict]:
     arrays = [s.sorted for s in samples]
     anova = one_way_anova(arrays)
     welch = welch_anova(arrays)
-    kw = kruskal_wallis(arrays, ranks=ranks)
+    kw = kruskal_wallis(arrays, ranks=shared.ranks, runs=shared.runs)
     spread = spread_test(arrays, center="median")
     rows = [
         {
@@ -553,12 +531,10 @@ def _measure_entry(
         entry["findings"] = findings_mod.measure_findings(entry, settings)
         return entry
 
-    # Mid-ranks within the pooled sample, once per measure (Kruskal–Wallis reuses them).
-    pooled = np.concatenate([s.sorted for s in samples])
-    all_ranks = stats.rankdata(pooled)
-    bounds = np.cumsum([0] + [s.n for s in samples])
-    ranks = [all_ranks[bounds[i] : bounds[i + 1]] for i in range(len(samples))]
-    omnibus, spread_row = _omnibus(samples, ranks)
+    # One pooled sort per measure gives the mid-ranks (Kruskal–Wallis reuses them), and every
+    # pair's dominance counts and tie term as lookups (Mann–Whitney, Cliff's delta, the shift).
+    shared = SharedRanks.of(samples)
+    omnibus, spread_row = _omnibus(samples, shared)
     lead, lead_reason, lead_basis = _choose_lead(
         group_rows, spread_row, residual_skew_check(samples), settings.alpha
     )
@@ -566,7 +542,6 @@ def _measure_entry(
 
     margin = spec.equivalence_margin.get(measure)
     reference = spec.reference
-    ties = _TieTable(samples)
     k = len(samples)
     perm = None
     if spec.permutations > 0 and perm_seed is not None:
@@ -649,13 +624,14 @@ def _measure_entry(
                     names[j],
                     samples[i],
                     samples[j],
-                    ties.term(i, j),
+                    shared.tie_term(i, j),
                     settings,
                     margin,
                     rank_lead,
                     rng,
                     perm,
                     False,
+                    dominance=shared.dominance(i, j),
                 )
             )
 

@@ -252,12 +252,15 @@ class KruskalResult:
 
 
 def kruskal_wallis(
-    groups: Sequence[np.ndarray], ranks: Sequence[np.ndarray] | None = None
+    groups: Sequence[np.ndarray],
+    ranks: Sequence[np.ndarray] | None = None,
+    runs: np.ndarray | None = None,
 ) -> KruskalResult:
     """Return the tie-corrected Kruskal–Wallis H, its df, p-value and epsilon².
 
     ``ranks`` (optional) are the mid-ranks of each group's values within the pooled sample,
-    computed once by the caller and reused; otherwise they are computed here.
+    computed once by the caller and reused; otherwise they are computed here. ``runs``
+    (optional, with ``ranks``) are the sizes of the runs of equal values in the pooled sample.
 
     Notes
     -----
@@ -289,7 +292,10 @@ def kruskal_wallis(
         bounds = np.cumsum(np.concatenate([[0], ns])).astype(int)
         ranks = [all_ranks[bounds[i] : bounds[i + 1]] for i in range(k)]
     sums = np.array([float(np.sum(r)) for r in ranks])
-    _, counts = np.unique(pooled, return_counts=True)
+    if runs is None:
+        _, counts = np.unique(pooled, return_counts=True)
+    else:
+        counts = runs  # the caller's pooled sort already has the sizes of equal-value runs
     tie_term = float(np.sum(counts.astype(float) ** 3 - counts))
     c = 1.0 - tie_term / (float(n) ** 3 - n) if n > 1 else math.nan
     # Σ R_i²/n_i − N(N+1)²/4 written as Σ n_i (R̄_i − (N+1)/2)² keeps precision for large N.
