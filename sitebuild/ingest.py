@@ -270,13 +270,19 @@ def _label_text(uniques) -> list[str | None]:
 
 
 def unordered_warnings(spec: DatasetSpec, groups: tuple[str, ...]) -> list[str]:
-    """One warning per group the manifest's ``order`` names but the data does not have."""
+    """One warning per group the manifest's ``order`` or ``labels`` names but the data does
+    not have."""
     present = set(groups)
     return [
         f"order names '{label}', which is not a group in column '{spec.group}'; check the "
         "spelling (labels are compared exactly)."
         for label in spec.order
         if label not in present
+    ] + [
+        f"labels names '{code}', which is not a group in column '{spec.group}'; check the "
+        "spelling (codes are compared exactly, so 01 and 1 differ)."
+        for code in spec.labels
+        if code not in present
     ]
 
 

@@ -57,6 +57,12 @@ DATASET_KEYS = {
     "date_format": "text",
     "table": "text",
     "query": "text",
+    # Practitioner keys (see _practice_keys): direction, display names, spec limits, time.
+    "better": "table of text",
+    "labels": "table of text",
+    "limits": "table of limits",
+    "target": "table of numbers",
+    "time_unit": "text",
 }
 DEFAULT_MIN_GROUP_SIZE = 5  # common practice: below ~5 values a group's tests say little
 # Pages the site writes itself; a dataset's page may never take one of these names.
@@ -66,6 +72,9 @@ WINDOWS_RESERVED = frozenset(
     {"con", "prn", "aux", "nul"} | {f"com{i}" for i in range(10)} | {f"lpt{i}" for i in range(10)}
 )
 SLUG_LENGTH = 60
+DIRECTIONS = ("lower", "higher")
+# x counts time in this unit (numbers, or dates read as such); trends are given per unit.
+TIME_UNITS = ("second", "minute", "hour", "day", "week", "month", "year")
 
 
 @dataclass(frozen=True)
@@ -112,6 +121,18 @@ class DatasetSpec:
     table: str | None = None  # SQLite table
     query: str | None = None  # SQLite read-only query
     page: str | None = None  # the page name, set by load_manifest (unique within the site)
+    # Which way is good per measure ("lower" or "higher"); measures not named have no direction.
+    better: dict[str, str] = field(default_factory=dict)
+    # Display names of group codes; results.json keeps the codes.
+    labels: dict[str, str] = field(default_factory=dict)
+    # Spec limits per measure: (lower, upper), either may be None for a one-sided limit.
+    limits: dict[str, tuple[float | None, float | None]] = field(default_factory=dict)
+    target: dict[str, float] = field(default_factory=dict)
+    time_unit: str | None = None  # x is a time axis counted in this unit
+
+    def label(self, group: str | None) -> str | None:
+        """Return the display name of a group code (the code itself when it has none)."""
+        return self.labels.get(group, group) if group is not None else None
 
     @property
     def slug(self) -> str:
@@ -151,6 +172,11 @@ class DatasetSpec:
                 )
                 if value is not None
             },
+            "better": dict(sorted(self.better.items())),
+            "labels": dict(sorted(self.labels.items())),
+            "limits": {k: list(v) for k, v in sorted(self.limits.items())},
+            "target": dict(sorted(self.target.items())),
+            "time_unit": self.time_unit,
         }
 
 
@@ -267,6 +293,17 @@ def _is_number(value) -> bool:
     return isinstance(value, int | float) and not isinstance(value, bool)
 
 
+def _is_limit(value) -> bool:
+    """A limit entry: [lower, upper] numbers, or a table with lower and/or upper."""
+    if isinstance(value, list):
+        return len(value) == 2 and all(_is_number(v) for v in value)
+    if isinstance(value, dict):
+        return bool(value) and all(
+            k in ("lower", "upper") and _is_number(v) for k, v in value.items()
+        )
+    return False
+
+
 def _inside(root: Path, candidate: Path) -> bool:
     try:
         candidate.resolve().relative_to(root.resolve())
@@ -352,6 +389,8 @@ def _check_types(check: _Checker, table: dict, allowed: dict, where: str, block:
             and all(isinstance(v, str) for v in value.values()),
             "table of lists": isinstance(value, dict)
             and all(isinstance(v, list) and v for v in value.values()),
+            "table of limits": isinstance(value, dict)
+            and all(_is_limit(v) for v in value.values()),
         }[kind]
         if not ok:
             shown = type(value).__name__
@@ -584,7 +623,9 @@ def load_manifest(project: str | Path) -> Manifest:
         if engine not in ENGINES:
             check.fail(label, "engine", f"is '{engine}'", "use one of " + ", ".join(ENGINES), index)
         reading = _reading_keys(check, entry, label, index, measures)
+        practice = _practice_keys(check, entry, measures, label, index)
         spec = DatasetSpec(
+            **practice,
             name=name,
             file=entry["file"],
             path=data_path,
@@ -607,3 +648,82 @@ def load_manifest(project: str | Path) -> Manifest:
         slugs[spec.slug] = name
         datasets.append(spec)
     return Manifest(root=root, path=path, site=site, datasets=tuple(datasets))
+
+
+def _measure_key(check: _Checker, key: str, measure: str, measures, label: str, index: int):
+    """Fail unless ``measure`` (a key of the table ``key``) is one of the measures."""
+    if measure in measures:
+        return
+    close = difflib.get_close_matches(measure, list(measures), n=1, cutoff=0.5)
+    hint = f"did you mean '{close[0]}'" if close else "use a measure listed in measures"
+    check.fail(label, key, f"names '{measure}', which is not one of the measures", hint, index)
+
+
+def _practice_keys(check: _Checker, entry: dict, measures, label: str, index: int) -> dict:
+    """Return the validated better / labels / limits / target / time_unit of one dataset."""
+    better = dict(entry.get("better", {}))
+    for measure, way in better.items():
+        _measure_key(check, "better", measure, measures, label, index)
+        if way not in DIRECTIONS:
+            close = difflib.get_close_matches(str(way).lower(), DIRECTIONS, n=1, cutoff=0.4)
+            hint = f"did you mean '{close[0]}'" if close else 'use "lower" or "higher"'
+            check.fail(label, "better", f"for '{measure}' is '{way}'", hint, index)
+    labels = dict(entry.get("labels", {}))
+    seen: dict[str, str] = {}
+    for code, shown in labels.items():
+        if not shown.strip():
+            check.fail(label, "labels", f"gives group '{code}' an empty name", "give a name", index)
+        if shown in seen:
+            check.fail(
+                label,
+                "labels",
+                f"gives '{seen[shown]}' and '{code}' the same name '{shown}'",
+                "give each group its own name",
+                index,
+            )
+        seen[shown] = code
+    limits: dict[str, tuple[float | None, float | None]] = {}
+    for measure, value in dict(entry.get("limits", {})).items():
+        _measure_key(check, "limits", measure, measures, label, index)
+        if isinstance(value, list):
+            low, high = float(value[0]), float(value[1])
+        else:
+            low, high = value.get("lower"), value.get("upper")
+            low = float(low) if low is not None else None
+            high = float(high) if high is not None else None
+        bad = [v for v in (low, high) if v is not None and not math.isfinite(v)]
+        if bad or (low is not None and high is not None and not low < high):
+            check.fail(
+                label,
+                "limits",
+                f"for '{measure}' is not a range with the lower limit below the upper",
+                "write [lower, upper], { lower = ... } or { upper = ... }",
+                index,
+            )
+        limits[measure] = (low, high)
+    target = {k: float(v) for k, v in dict(entry.get("target", {})).items()}
+    for measure, value in target.items():
+        _measure_key(check, "target", measure, measures, label, index)
+        low, high = limits.get(measure, (None, None))
+        if (
+            not math.isfinite(value)
+            or (low is not None and value < low)
+            or (high is not None and value > high)
+        ):
+            check.fail(
+                label,
+                "target",
+                f"for '{measure}' is {value:g}, outside its limits",
+                "give a target between the lower and upper limits",
+                index,
+            )
+    unit = entry.get("time_unit")
+    if unit is not None:
+        if not entry.get("x"):
+            check.fail(label, "time_unit", "is set but there is no x", "add x = ...", index)
+        if unit not in TIME_UNITS:
+            close = difflib.get_close_matches(unit.rstrip("s"), list(TIME_UNITS), n=1)
+            hint = f"did you mean '{close[0]}'" if close else "use one of " + ", ".join(TIME_UNITS)
+            check.fail(label, "time_unit", f"is '{unit}'", hint, index)
+    return {"better": better, "labels": labels, "limits": limits, "target": target,
+            "time_unit": unit}  # fmt: skip

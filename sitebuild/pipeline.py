@@ -29,7 +29,7 @@ from .cache import (
 )
 from .errors import SitebuildError
 from .manifest import Manifest, load_manifest
-from .sections import PARALLEL_ROWS, section_modules
+from .sections import PARALLEL_ROWS, READS_RESULTS, SECTION_NAMES, section_modules
 
 
 @dataclass(frozen=True)
@@ -208,7 +208,8 @@ def analyse(table, manifest: Manifest, timer: Timer, say=None) -> dict:
     # numpy sorting and searching, which releases the GIL; each has its own seeded generator,
     # so the results are the same in any order.
     ds.update(run(0, ds))
-    rest = range(1, len(modules))
+    late = [i for i, name in enumerate(SECTION_NAMES) if name in READS_RESULTS]
+    rest = [i for i in range(1, len(modules)) if i not in late]
     if table.n_rows >= PARALLEL_ROWS and len(rest) > 1 and (os.cpu_count() or 1) > 1:
         from concurrent.futures import ThreadPoolExecutor
 
@@ -220,6 +221,8 @@ def analyse(table, manifest: Manifest, timer: Timer, say=None) -> dict:
     else:
         for index in rest:
             ds.update(run(index, ds))
+    for index in late:  # these read the other sections' results
+        ds.update(run(index, ds))
     return ds
 
 

@@ -51,6 +51,19 @@ measures = ["loaf volume (ml)", "crust score"]
 x = "proofing time (min)"
 # Optional markdown note shown at the top of the dataset's page.
 notes = "notes/loaves.md"
+# Optional: which way is good per measure ("lower" or "higher"); the findings then name
+# the best and worst group and say better/worse instead of higher/lower.
+better = {{ "loaf volume (ml)" = "higher" }}
+# Optional: names shown for group codes on pages, charts and CSV files (results.json keeps
+# the codes).
+# labels = {{ "rye blend" = "rye, house blend" }}
+# Optional: spec limits per measure, as [lower, upper], {{ lower = ... }} or {{ upper = ... }},
+# and a target; the page counts values outside and gives Cp and Cpk per group.
+# limits = {{ "loaf volume (ml)" = [1350, 1950] }}
+# target = {{ "loaf volume (ml)" = 1650 }}
+# Optional: x is a time axis counted in this unit (second, minute, hour, day, week, month,
+# year); each group's trend is then given per unit.
+# time_unit = "day"
 """
 
 NOTES = """\

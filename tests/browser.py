@@ -45,6 +45,7 @@ class PageVisit:
     charts: int = 0
     drawn: int = 0
     failed_charts: list[str] = field(default_factory=list)
+    drawn_ids: list[str] = field(default_factory=list)  # data-chart ids holding an SVG or canvas
 
 
 def visit_pages(browser, urls: list[str], settle_ms: int = 15000) -> list[PageVisit]:
@@ -92,6 +93,10 @@ def visit_pages(browser, urls: list[str], settle_ms: int = 15000) -> list[PageVi
             except Exception:  # a timeout is reported through the counts below
                 pass
         visit.drawn = page.locator("[data-chart] svg, [data-chart] canvas").count()
+        visit.drawn_ids = page.eval_on_selector_all(
+            "[data-chart]",
+            "bs => bs.filter(b => b.querySelector('svg, canvas')).map(b => b.dataset.chart)",
+        )
         visit.failed_charts = page.eval_on_selector_all(
             "[data-chart]",
             "bs => bs.filter(b => !b.querySelector('svg, canvas')).map(b => b.dataset.chart + ': ' + b.textContent)",

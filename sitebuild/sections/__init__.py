@@ -17,7 +17,10 @@ from __future__ import annotations
 import importlib
 from dataclasses import dataclass
 
-SECTION_NAMES = ("summaries", "relationships", "comparisons")
+SECTION_NAMES = ("summaries", "relationships", "comparisons", "adjusted", "capability", "trend")
+# Sections that read other sections' results (curve flags, the x-balance check): the pipeline
+# runs them after all the others, with every earlier key in ``partial``.
+READS_RESULTS = frozenset({"adjusted"})
 MAX_CHART_GROUPS = 30  # groups drawn in distribution charts; tables keep every group
 # From this many rows the analysis uses two threads (below it, threads cost more than they
 # save); the heavy work is numpy sorting and searching, which releases the GIL.

@@ -844,6 +844,7 @@ def _measure_entry(
             "adjust_name": METHOD_NAMES[method],
         },
         "margin": margin,
+        "better": spec.better.get(measure),  # which way is good, from the manifest (or None)
         "reference": names[ref_index] if ref_index is not None else None,
         "permutation": (
             {"seed": perm_seed, "manifest_seed": settings.seed, "count": spec.permutations}

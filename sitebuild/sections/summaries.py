@@ -206,6 +206,7 @@ def _shown_groups(ds: dict, measure: str) -> list[str]:
 def charts(ds: dict, settings: SiteSettings) -> list[Chart]:
     """Return, per measure, the mean-interval, histogram and box charts."""
     from ..charts import summary as draw
+    from ..charts.limits import with_limits  # spec limits, when the manifest gives them
 
     out = []
     level = f"{settings.confidence:.0%}"
@@ -249,7 +250,10 @@ def charts(ds: dict, settings: SiteSettings) -> list[Chart]:
                     f"and dots are values beyond (at most {MAX_OUTLIER_POINTS} of the most "
                     "extreme per side and group; the table counts them all)."
                 ),
-                spec=draw.boxes(dist, shown, ds["groups"], measure, fmt),
+                spec=with_limits(
+                    draw.boxes(dist, shown, ds["groups"], measure, fmt),
+                    next((c for c in ds.get("capability", []) if c["measure"] == measure), None),
+                ),
                 table=f"sum-{mi}",
             )
         )

@@ -247,6 +247,9 @@ def bottom_line_row(ds: dict, entry: dict, index: int) -> BottomLineRow:
     adjusted = entry.get("adjusted")
     if isinstance(adjusted, dict) and isinstance(adjusted.get("sentence"), str):
         x_note = adjusted["sentence"]  # the adjusted comparison says it better when present
+    for equal_x in ds.get("adjusted") or []:  # the gap at equal x, when groups differ in x
+        if equal_x.get("measure") == measure and equal_x.get("differs_in_x"):
+            x_note = equal_x.get("headline") or x_note
     verdict = "The groups differ" if differ else "No clear difference shown"
     top_text = f"{best['group']} {_with_unit(format_value(best[centre], decimals), unit)}"
     bottom_text = f"{worst['group']} {_with_unit(format_value(worst[centre], decimals), unit)}"

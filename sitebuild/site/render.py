@@ -15,6 +15,7 @@ from pathlib import Path
 
 from .. import __version__
 from ..manifest import Manifest
+from .labels import display_copy, with_codes
 
 ASSET_BUNDLE = "assets/vega-bundle.js"
 MARKER = ".sitebuild-site"
@@ -271,7 +272,9 @@ def page_parts(ds: dict, settings) -> tuple[dict, dict]:
 
 def dataset_page(env, common: dict, ds: dict, spec) -> tuple[dict, dict]:
     """Return (page context, CSV files) for one dataset; the context renders dataset.html."""
+    ds = display_copy(ds, spec.labels)  # group names instead of codes (results keep codes)
     charts, tables = page_parts(ds, common["site"])
+    tables = {key: with_codes(table, spec.labels) for key, table in tables.items()}
     csv_files = {}
     for key, table in list(tables.items()):
         name = f"tables/{ds['slug']}-{table.id}.csv"
@@ -402,7 +405,14 @@ def render_site(
 
     env = environment(manifest.root / "layouts")
     files: dict[str, bytes] = {}
-    common = common_context(results, manifest)
+    shown = {
+        **results,
+        "datasets": [
+            display_copy(ds, spec.labels)
+            for ds, spec in zip(results["datasets"], manifest.datasets, strict=True)
+        ],
+    }
+    common = common_context(shown, manifest)
     for ds, spec in zip(results["datasets"], manifest.datasets, strict=True):
         name = f"{ds['slug']}.html"
         key = pages.key(ds, spec) if pages is not None else None
@@ -441,7 +451,7 @@ def render_site(
         env.get_template("index.html")
         .render(
             **common,
-            **overview_context(results, manifest.site),
+            **overview_context(shown, manifest.site),
             current="index.html",
             chart_specs={},
             changes_summary=summary,

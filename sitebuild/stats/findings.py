@@ -153,11 +153,18 @@ def measure_unit(measure: str) -> str:
 
 
 def _difference_sentence(
-    r: dict, confidence: float, decimals: int | None, unit: str = "", sds: dict | None = None
+    r: dict,
+    confidence: float,
+    decimals: int | None,
+    unit: str = "",
+    sds: dict | None = None,
+    better: str | None = None,
 ) -> str:
     est, lo, hi = r.get("estimate"), r.get("ci_low"), r.get("ci_high")
     higher = (est or 0) > 0
     word = "higher" if higher else "lower"
+    if better:  # the manifest says which way is good: better/worse instead of higher/lower
+        word = "better" if higher == (better == "higher") else "worse"
     # The interval is of a − b; said as "lower by", it is shown as the size of the gap.
     if lo is not None and hi is not None and not higher:
         lo, hi = -hi, -lo
@@ -245,6 +252,8 @@ def measure_findings(entry: dict, settings) -> list[str]:
     )
     more = f", and {len(rows) - MAX_GROUPS_NAMED} more" if len(rows) > MAX_GROUPS_NAMED else ""
     out.append(f"By {centre}, highest first: {named}{more}.")
+    # The bottom line names the best and worst group; the sentences below say better/worse.
+    better = entry.get("better")
     # The comparisons section marks a group strongly skewed only beyond sampling noise; rows
     # without that mark (older results) fall back to the plain common-practice limit.
     skewed = [
@@ -320,7 +329,9 @@ def measure_findings(entry: dict, settings) -> list[str]:
                 f"Comparing {family.get('description')}: "
                 + ("they differ." if differ else f"no clear difference at alpha = {alpha:g}.")
             )
-            out.extend(_difference_sentence(r, confidence, decimals, unit, sds) for r in differ)
+            out.extend(
+                _difference_sentence(r, confidence, decimals, unit, sds, better) for r in differ
+            )
         elif differ:
             out.append(
                 f"Comparing {family.get('description')}, with p-values adjusted by "
@@ -328,7 +339,7 @@ def measure_findings(entry: dict, settings) -> list[str]:
                 f"{'comparison shows' if len(pairs) == 1 else 'comparisons show'} a difference."
             )
             for r in differ[:MAX_LISTED]:
-                out.append(_difference_sentence(r, confidence, decimals, unit, sds))
+                out.append(_difference_sentence(r, confidence, decimals, unit, sds, better))
             if len(differ) > MAX_LISTED:
                 out.append(f"{len(differ) - MAX_LISTED} more differences are listed in the table.")
         else:
