@@ -290,6 +290,19 @@ def _entry(table, measure: str, settings, partial: dict, balance: dict | None) -
     }
     entry["findings"] = practice_findings.adjusted_findings(entry)
     entry["headline"] = practice_findings.adjusted_headline(entry)
+    if streamed:
+        # Whether the groups differ in x is a rank test on the bounded sample, and each
+        # group's x range is over all its rows rather than its complete pairs: list them.
+        entry["from_sample"] = [
+            "differs_in_x",
+            "findings",
+            "headline",
+            "lead_reason",
+            "leads",
+            "overlap",
+        ]
+        for row in groups:
+            row["from_sample"] = ["extrapolated", "x_high", "x_low"]
     return entry
 
 
