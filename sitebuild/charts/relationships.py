@@ -3,7 +3,19 @@ inline data under fixed field names; user text appears only as data values and t
 
 from __future__ import annotations
 
-from .theme import DIVERGING, INK, MUTED, group_colour_scale, themed
+import numpy as np
+
+from .theme import (
+    DIVERGING,
+    INK,
+    MARKER_SIZE,
+    MARKER_STROKE,
+    MUTED,
+    focus_opacity,
+    group_encoding,
+    themed,
+    with_focus,
+)
 
 NULL_FILL = "#eceff2"
 
@@ -114,17 +126,52 @@ def correlation_heatmap(cells: list[dict], columns: list[str], alpha: float) -> 
 MAX_GROUP_BANDS = 3  # group smooths drawn with their bands; more are drawn as lines only
 
 
+JITTER_SEED = 16  # fixed: the same data give the same picture on every build
+JITTER_WIDTH = 0.3  # share of the step between whole-number x values (either side)
+
+
+def jittered(points: list[dict]) -> tuple[list[dict], bool]:
+    """Return (points, whether x was jittered): a whole-number x with few distinct values
+    (order lines, counts) piles points into stripes, so each point is moved sideways by a
+    seeded uniform amount of at most ±0.3 of a step; ``x_value`` keeps the true value."""
+    xs = [p["x"] for p in points if isinstance(p.get("x"), int | float)]
+    whole = bool(xs) and all(float(v).is_integer() for v in xs)
+    if not whole or len(set(xs)) > 60 or len(set(xs)) == len(xs):
+        return points, False
+    rng = np.random.default_rng(JITTER_SEED)
+    shifts = rng.uniform(-JITTER_WIDTH, JITTER_WIDTH, size=len(points))
+    out = []
+    for p, d in zip(points, shifts, strict=True):
+        x = p.get("x")
+        moved = x + float(d) if isinstance(x, int | float) else x
+        out.append({**p, "x": moved, "x_value": x})
+    return out, True
+
+
 def scatter_with_smooths(
-    scatter: dict, smooths: list[dict], line: dict | None, groups: list[str]
+    scatter: dict,
+    smooths: list[dict],
+    line: dict | None,
+    groups: list[str],
+    group_by: str | None = None,
+    reference: str | None = None,
 ) -> dict:
-    """Return a scatter of sampled points by group with LOESS lines, bands and a straight line."""
-    colour = {
-        "field": "group",
-        "type": "nominal",
-        "title": "Group",
-        "scale": group_colour_scale(groups),
+    """Return a scatter of sampled points by group with LOESS lines, bands and a straight line.
+
+    Groups are told apart by colour and shape (hollow markers, one legend titled with the group
+    column's name); a whole-number x is jittered (see :func:`jittered`).
+    """
+    look = group_encoding(groups, group_by or "Group", reference)
+    colour = look["color"]
+    points, jitter = jittered(scatter["points"])
+    x_axis = {"tickMinStep": 1, "format": "d"} if jitter else {}
+    x = {
+        "field": "x",
+        "type": "quantitative",
+        "title": scatter["x"],
+        "scale": {"zero": False},
+        **({"axis": x_axis} if x_axis else {}),
     }
-    x = {"field": "x", "type": "quantitative", "title": scatter["x"], "scale": {"zero": False}}
     y_title = scatter["y"]
     curve_groups = {s["group"] for s in smooths if s["group"] is not None}
     # Beyond a few groups, overlapping bands blur into one another: the group smooths are then
@@ -144,16 +191,16 @@ def scatter_with_smooths(
     layers: list[dict] = [
         {
             "data": {"name": "points"},
-            "mark": {"type": "point", "filled": True, "size": 16, "opacity": 0.45},
+            "mark": {
+                "type": "point",
+                "filled": False,
+                "size": MARKER_SIZE,
+                "strokeWidth": MARKER_STROKE,
+            },
             "encoding": {
                 # Shape repeats the colour so groups part without colour vision (and in
                 # print); one legend, as both scales share the groups and the title.
-                "shape": {
-                    "field": "group",
-                    "type": "nominal",
-                    "title": "Group",
-                    "scale": {"domain": list(groups)},
-                },
+                "shape": look["shape"],
                 "x": x,
                 "y": {
                     "field": "y",
@@ -162,28 +209,34 @@ def scatter_with_smooths(
                     "scale": {"zero": False},
                 },
                 "color": colour,
+                "opacity": focus_opacity(full=0.8),
                 "tooltip": [
-                    {"field": "group", "type": "nominal", "title": "Group"},
-                    {"field": "x", "type": "quantitative", "title": scatter["x"]},
+                    {"field": "group", "type": "nominal", "title": group_by or "Group"},
+                    {
+                        "field": "x_value" if jitter else "x",
+                        "type": "quantitative",
+                        "title": scatter["x"],
+                    },
                     {"field": "y", "type": "quantitative", "title": y_title},
                 ],
             },
         }
     ]
     # Named datasets: each curve's rows are shipped once and shared by its band and line layers.
-    datasets = {"points": scatter["points"], "curves": group_curves, "overall": overall}
+    datasets = {"points": points, "curves": group_curves, "overall": overall}
     has_band = {"filter": "isValid(datum.low) && isValid(datum.high)"}
     if group_curves and group_bands:
         layers.append(
             {
                 "data": {"name": "curves"},
                 "transform": [has_band],
-                "mark": {"type": "area", "opacity": 0.12},
+                "mark": {"type": "area"},
                 "encoding": {
                     "x": x,
                     "y": {"field": "low", "type": "quantitative"},
                     "y2": {"field": "high"},
                     "color": colour,
+                    "opacity": focus_opacity(full=0.12),
                 },
             }
         )
@@ -191,12 +244,13 @@ def scatter_with_smooths(
         layers.append(
             {
                 "data": {"name": "curves"},
-                "mark": {"type": "line", "strokeWidth": 1.8},
+                "mark": {"type": "line", "strokeWidth": 2.2},
                 "encoding": {
                     "x": x,
                     "y": {"field": "fit", "type": "quantitative"},
                     "color": colour,
                     "detail": {"field": "group", "type": "nominal"},
+                    "opacity": focus_opacity(),
                 },
             }
         )
@@ -247,5 +301,11 @@ def scatter_with_smooths(
                 "encoding": {"x": x, "y": {"field": "fit", "type": "quantitative"}},
             }
         )
-    spec = {"width": "container", "height": 300, "datasets": datasets, "layer": layers}
-    return themed(spec)
+    spec = {
+        "width": "container",
+        "height": 300,
+        "datasets": datasets,
+        "layer": layers,
+        "usermeta": {"measure": y_title, "kind": "scatter"},
+    }
+    return themed(with_focus(spec, groups))

@@ -503,7 +503,21 @@ def charts(dataset: dict, settings) -> list[Chart]:
                     )
                     + ", and the straight-line fit for all rows."
                 ),
-                spec=scatter_with_smooths(scatter, smooths, line, info["groups"]),
+                spec=scatter_with_smooths(
+                    scatter,
+                    smooths,
+                    line,
+                    info["groups"],
+                    group_by=dataset.get("group_by"),
+                    reference=next(
+                        (
+                            e.get("reference")
+                            for e in dataset.get("comparisons", [])
+                            if e.get("measure") == y
+                        ),
+                        None,
+                    ),
+                ),
                 table="rel-lines",
             )
         )

@@ -181,6 +181,12 @@ def _shown_groups(ds: dict, measure: str) -> list[str]:
     return [g for g in ds["groups"] if g in keep]
 
 
+def _reference(ds: dict, measure: str) -> str | None:
+    """The measure's reference group (drawn in a neutral grey), if its comparisons have one."""
+    entry = next((e for e in ds.get("comparisons", []) if e.get("measure") == measure), {})
+    return entry.get("reference")
+
+
 def charts(ds: dict, settings: SiteSettings) -> list[Chart]:
     """Return, per measure, the mean-interval, histogram and box charts."""
     from ..charts import summary as draw
@@ -192,6 +198,7 @@ def charts(ds: dict, settings: SiteSettings) -> list[Chart]:
         rows = [r for r in ds["summaries"] if r["measure"] == measure and r["group"] in shown]
         dist = next(d for d in ds["distributions"] if d["measure"] == measure)
         fmt = draw.value_format(rows)
+        look = {"group_by": ds.get("group_by"), "reference": _reference(ds, measure)}
         out.append(
             Chart(
                 id=f"sum-{mi}-means",
@@ -201,7 +208,7 @@ def charts(ds: dict, settings: SiteSettings) -> list[Chart]:
                     "Overlap is not a test: two intervals can overlap while the groups differ; "
                     "the comparisons below say which differ." + _extremes(rows)
                 ),
-                spec=draw.mean_intervals(rows, ds["groups"], measure),
+                spec=draw.mean_intervals(rows, ds["groups"], measure, **look),
                 table=f"sum-{mi}",
             )
         )
@@ -213,7 +220,7 @@ def charts(ds: dict, settings: SiteSettings) -> list[Chart]:
                     f"Histograms of {measure} per group on shared bins, as the share of each "
                     "group's values, so groups of different sizes compare fairly."
                 ),
-                spec=draw.histograms(dist, shown, ds["groups"], measure, fmt),
+                spec=draw.histograms(dist, shown, ds["groups"], measure, fmt, **look),
                 table=f"sum-{mi}",
             )
         )
@@ -227,7 +234,7 @@ def charts(ds: dict, settings: SiteSettings) -> list[Chart]:
                     f"and dots are values beyond (at most {MAX_OUTLIER_POINTS} of the most "
                     "extreme per side and group; the table counts them all)."
                 ),
-                spec=draw.boxes(dist, shown, ds["groups"], measure, fmt),
+                spec=draw.boxes(dist, shown, ds["groups"], measure, fmt, **look),
                 table=f"sum-{mi}",
             )
         )
