@@ -395,11 +395,19 @@ def pvalue_matrix_chart(entry: dict, mi: int) -> Chart | None:
             "x": {
                 "field": "col",
                 "type": "nominal",
-                "sort": groups,
+                # Order by the scale's domain, not a sort list: Vega-Lite writes a sort list
+                # into expression code, where a label with U+2028 breaks the chart.
+                "scale": {"domain": groups},
                 "title": None,
                 "axis": {**axis, "labelAngle": -40},
             },
-            "y": {"field": "row", "type": "nominal", "sort": groups, "title": None, "axis": axis},
+            "y": {
+                "field": "row",
+                "type": "nominal",
+                "scale": {"domain": groups},
+                "title": None,
+                "axis": axis,
+            },
         },
         "layer": [
             {

@@ -45,8 +45,9 @@ def correlation_heatmap(cells: list[dict], columns: list[str], alpha: float) -> 
                 }
             )
     size = max(36 * len(columns), 120)
-    x = {"field": "a", "type": "nominal", "sort": list(columns), "title": None}
-    y = {"field": "b", "type": "nominal", "sort": list(columns), "title": None}
+    # Ordered by the scales' domains: a sort list would be written into expression code.
+    x = {"field": "a", "type": "nominal", "scale": {"domain": list(columns)}, "title": None}
+    y = {"field": "b", "type": "nominal", "scale": {"domain": list(columns)}, "title": None}
     tooltip = [
         {"field": "a", "type": "nominal", "title": "Column"},
         {"field": "b", "type": "nominal", "title": "With"},

@@ -33,7 +33,9 @@ def _group_colour(all_groups: list[str], reference: str | None = None) -> dict:
 
 
 def _group_axis(groups: list[str]) -> dict:
-    return {"field": "group", "type": "nominal", "sort": list(groups), "title": None}
+    # Ordered by the scale's domain, not a sort list: Vega-Lite writes a sort list into
+    # expression code, where a label holding U+2028 stops the chart from drawing.
+    return {"field": "group", "type": "nominal", "scale": {"domain": list(groups)}, "title": None}
 
 
 def value_format(rows: list[dict]) -> str:
@@ -208,14 +210,16 @@ def histograms(
     """Return small-multiple histograms on shared bins, one row per group, as shares."""
     edges = dist["edges"]
     values = []
+    position = {g: i for i, g in enumerate(shown)}
     for g in dist["groups"]:
-        if g["group"] not in shown:
+        if g["group"] not in position:
             continue
         total = sum(g["counts"]) or 1
         for i, count in enumerate(g["counts"]):
             values.append(
                 {
                     "group": g["group"],
+                    "position": position[g["group"]],
                     "start": edges[i],
                     "end": edges[i + 1],
                     "count": count,
@@ -248,7 +252,8 @@ def histograms(
                     "row": {
                         "field": "group",
                         "type": "nominal",
-                        "sort": list(shown),
+                        # By each group's position (a sort list would become expression code).
+                        "sort": {"field": "position", "op": "min"},
                         "title": None,
                         # Names above each panel, so the panels keep the width on a phone.
                         "header": {
