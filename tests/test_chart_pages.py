@@ -68,7 +68,7 @@ def _forest_rows(entry, mi=0):
     from sitebuild.charts.comparisons import forest_chart
 
     chart = forest_chart(entry, mi)
-    return chart, chart.spec["data"]["values"]
+    return chart, chart.spec["datasets"]["pairs"]
 
 
 def test_a_pair_is_drawn_clear_of_zero_exactly_when_its_verdict_is_differs(twelve):

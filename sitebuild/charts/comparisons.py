@@ -8,7 +8,19 @@ import math
 
 from ..sections import Chart
 from .summary import MIN_DRAWN_N
-from .theme import FOCUS, INK, PALETTE, REFERENCE_COLOUR, edge_arrows, themed, with_focus
+from .theme import (
+    DIMMED,
+    FOCUS,
+    INK,
+    PALETTE,
+    REFERENCE_COLOUR,
+    altair,
+    dashed_when_few,
+    edge_arrows,
+    focus_param,
+    themed,
+    to_spec,
+)
 
 MAX_FOREST_ROWS = 60
 MAX_MATRIX_GROUPS = 30
@@ -188,146 +200,110 @@ def forest_chart(entry: dict, mi: int) -> Chart | None:
                 r[key] = min(max(r[key], low_edge), high_edge)
     est_name = ranked[0].get("estimate_name", "difference")
     measure = entry["measure"]
-    y = {
-        "field": "label",
-        "type": "nominal",
-        "sort": {"field": "order", "order": "descending"},
-        "title": None,
-        "axis": {"labelLimit": 220},
-    }
+    alt = altair()
+    y = alt.Y(
+        field="label",
+        type="nominal",
+        sort=alt.EncodingSortField(field="order", order="descending"),
+        title=None,
+        axis=alt.Axis(labelLimit=220),
+    )
     # The measure's name carries its unit ("leaf mass (g)"); short enough for a half-width chart.
     x_title = f"{est_name} in {measure}, first minus second"
     occurring = [s for s in STATUS_COLOURS if any(r["status"] == s for r in rows)]
-    # Dim the pairs that do not involve the picked group.
-    opacity = {
-        "condition": {
-            "test": f"{FOCUS} != null && datum.a !== {FOCUS} && datum.b !== {FOCUS}",
-            "value": 0.15,
-        },
-        "value": 1,
-    }
-    layers: list[dict] = []
+
+    def picked(full: float):
+        # Dim the pairs that do not involve the picked group.
+        test = f"{FOCUS} != null && datum.a !== {FOCUS} && datum.b !== {FOCUS}"
+        return alt.OpacityValue(condition={"test": test, "value": DIMMED}, value=full)
+
+    colour = alt.Color(
+        field="status",
+        type="nominal",
+        title="Verdict",
+        scale=alt.Scale(domain=occurring, range=[STATUS_COLOURS[s] for s in occurring]),
+    )
+    layers = []
     if margin:
         layers.append(
-            {
-                "data": {"values": [{"low": -margin, "high": margin}]},
-                "mark": {"type": "rect", "color": PALETTE[1], "opacity": 0.12},
-                "encoding": {
-                    "x": {"field": "low", "type": "quantitative"},
-                    "x2": {"field": "high"},
-                },
-            }
+            alt.Chart(alt.Data(values=[{"low": -margin, "high": margin}]))
+            .mark_rect(color=PALETTE[1], opacity=0.12)
+            .encode(x=alt.X(field="low", type="quantitative"), x2=alt.X2(field="high"))
         )
     layers.append(
-        {
-            "data": {"values": [{"x": 0}]},
-            "mark": {"type": "rule", "color": INK, "strokeDash": [4, 3]},
-            "encoding": {"x": {"field": "x", "type": "quantitative"}},
-        }
+        alt.Chart(alt.Data(values=[{"x": 0}]))
+        .mark_rule(color=INK, strokeDash=[4, 3])
+        .encode(x=alt.X(field="x", type="quantitative"))
     )
-    colour = {
-        "field": "status",
-        "type": "nominal",
-        "title": "Verdict",
-        "scale": {"domain": occurring, "range": [STATUS_COLOURS[s] for s in occurring]},
-    }
     if margin and any(r["eq_low"] is not None for r in rows):
         layers.append(
-            {
-                "transform": [{"filter": "isValid(datum.eq_low) && isValid(datum.eq_high)"}],
-                "mark": {"type": "bar", "size": 9, "color": PALETTE[1], "opacity": 0.35},
-                "encoding": {
-                    "y": y,
-                    "x": {"field": "eq_low", "type": "quantitative"},
-                    "x2": {"field": "eq_high"},
-                    "opacity": {**opacity, "value": 0.35},
-                },
-            }
+            alt.Chart()
+            .transform_filter("isValid(datum.eq_low) && isValid(datum.eq_high)")
+            .mark_bar(size=9, color=PALETTE[1])
+            .encode(
+                y=y,
+                x=alt.X(field="eq_low", type="quantitative"),
+                x2=alt.X2(field="eq_high"),
+                opacity=picked(0.35),
+            )
         )
     layers.append(
-        {
-            "transform": [{"filter": "isValid(datum.draw_low) && isValid(datum.draw_high)"}],
-            "mark": {"type": "rule", "strokeWidth": 2.5},
-            "encoding": {
-                "y": y,
-                "x": {
-                    "field": "draw_low",
-                    "type": "quantitative",
-                    "title": x_title,
-                    "scale": {"domain": [low_edge, high_edge], "nice": False, "zero": False},
-                },
-                "x2": {"field": "draw_high"},
-                "strokeDash": {
-                    "condition": {"test": "datum.few", "value": [3, 3]},
-                    "value": [1, 0],
-                },
-                "color": colour,
-                "opacity": opacity,
-            },
-        }
+        alt.Chart()
+        .transform_filter("isValid(datum.draw_low) && isValid(datum.draw_high)")
+        .mark_rule(strokeWidth=2.5)
+        .encode(
+            y=y,
+            x=alt.X(
+                field="draw_low",
+                type="quantitative",
+                title=x_title,
+                scale=alt.Scale(domain=[low_edge, high_edge], nice=False, zero=False),
+            ),
+            x2=alt.X2(field="draw_high"),
+            strokeDash=dashed_when_few(),
+            color=colour,
+            opacity=picked(1),
+        )
     )
+    fmt = ".4~g"
     layers.append(
-        {
-            "mark": {
-                "type": "point",
-                "filled": True,
-                "size": 90,
-                "stroke": "#ffffff",
-                "strokeWidth": 1,
-            },
-            "encoding": {
-                "y": y,
-                "x": {"field": "x", "type": "quantitative"},
-                "color": colour,
-                "shape": {
-                    "field": "status",
-                    "type": "nominal",
-                    "title": "Verdict",
-                    "scale": {
-                        "domain": occurring,
-                        "range": [STATUS_SHAPES[s] for s in occurring],
-                    },
-                },
-                "opacity": opacity,
-                "tooltip": [
-                    {"field": "label", "type": "nominal", "title": "Pair"},
-                    {
-                        "field": "x",
-                        "type": "quantitative",
-                        "title": f"{est_name} ({measure})",
-                        "format": ".4~g",
-                    },
-                    {
-                        "field": "low",
-                        "type": "quantitative",
-                        "title": "Interval low",
-                        "format": ".4~g",
-                    },
-                    {
-                        "field": "high",
-                        "type": "quantitative",
-                        "title": "Interval high",
-                        "format": ".4~g",
-                    },
-                    {"field": "q", "type": "quantitative", "title": "Adjusted p", "format": ".3g"},
-                    {"field": "n_a", "type": "quantitative", "title": "n (first)"},
-                    {"field": "n_b", "type": "quantitative", "title": "n (second)"},
-                    {"field": "status", "type": "nominal", "title": "Verdict"},
-                ],
-            },
-        }
+        alt.Chart()
+        .mark_point(filled=True, size=90, stroke="#ffffff", strokeWidth=1)
+        .encode(
+            y=y,
+            x=alt.X(field="x", type="quantitative"),
+            color=colour,
+            shape=alt.Shape(
+                field="status",
+                type="nominal",
+                title="Verdict",
+                scale=alt.Scale(domain=occurring, range=[STATUS_SHAPES[s] for s in occurring]),
+            ),
+            opacity=picked(1),
+            tooltip=[
+                alt.Tooltip(field="label", type="nominal", title="Pair"),
+                alt.Tooltip(
+                    field="x", type="quantitative", title=f"{est_name} ({measure})", format=fmt
+                ),
+                alt.Tooltip(field="low", type="quantitative", title="Interval low", format=fmt),
+                alt.Tooltip(field="high", type="quantitative", title="Interval high", format=fmt),
+                alt.Tooltip(field="q", type="quantitative", title="Adjusted p", format=".3g"),
+                alt.Tooltip(field="n_a", type="quantitative", title="n (first)"),
+                alt.Tooltip(field="n_b", type="quantitative", title="n (second)"),
+                alt.Tooltip(field="status", type="nominal", title="Verdict"),
+            ],
+        )
     )
     layers.extend(edge_arrows(arrows, {"y": y}))
     groups = sorted({r["a"] for r in rows} | {r["b"] for r in rows})
-    spec = with_focus(
-        {
-            "data": {"values": rows},
-            "height": max(60, 22 * len(rows)),
-            "width": "container",
-            "layer": layers,
-            "usermeta": {"measure": measure, "kind": "forest"},
-        },
-        groups,
+    chart = (
+        alt.layer(*layers, data=alt.NamedData(name="pairs"))
+        .properties(
+            height=max(60, 22 * len(rows)),
+            width="container",
+            usermeta={"measure": measure, "kind": "forest", "groups": groups},
+        )
+        .add_params(focus_param())
     )
     shown = "" if len(ranked) == len(pairs) else f" (the {len(ranked)} largest of {len(pairs)})"
     family = entry.get("family") or {}
@@ -354,7 +330,7 @@ def forest_chart(entry: dict, mi: int) -> Chart | None:
             f"Estimated {est_name} for each compared pair{shown}, sorted by size, with "
             f"{what}; the dashed line marks no difference{band}."
         ),
-        spec=themed(spec),
+        spec=to_spec(chart, {"pairs": rows}),
         table=f"cmp-{mi}-pairs",
     )
 

@@ -11,10 +11,12 @@ from .theme import (
     MARKER_SIZE,
     MARKER_STROKE,
     MUTED,
-    focus_opacity,
+    altair,
+    dimmed_unless_picked,
+    focus_param,
     group_encoding,
     themed,
-    with_focus,
+    to_spec,
 )
 
 NULL_FILL = "#eceff2"
@@ -162,17 +164,18 @@ def scatter_with_smooths(
     Groups are told apart by colour and shape (hollow markers, one legend titled with the group
     column's name); a whole-number x is jittered (see :func:`jittered`).
     """
+    alt = altair()
     look = group_encoding(groups, group_by or "Group", reference)
-    colour = look["color"]
+    colour = alt.Color(**look["color"])
     points, jitter = jittered(scatter["points"])
-    x_axis = {"tickMinStep": 1, "format": "d"} if jitter else {}
-    x = {
-        "field": "x",
-        "type": "quantitative",
-        "title": scatter["x"],
-        "scale": {"zero": False},
-        **({"axis": x_axis} if x_axis else {}),
-    }
+    x = alt.X(
+        field="x",
+        type="quantitative",
+        title=scatter["x"],
+        scale=alt.Scale(zero=False),
+        # Jittered whole numbers keep whole-number ticks ("1, 2", not "1.0, 2.0").
+        **({"axis": alt.Axis(tickMinStep=1, format="d")} if jitter else {}),
+    )
     y_title = scatter["y"]
     curve_groups = {s["group"] for s in smooths if s["group"] is not None}
     # Beyond a few groups, overlapping bands blur into one another: the group smooths are then
@@ -189,124 +192,91 @@ def scatter_with_smooths(
     overall = [
         p for s in smooths if s["group"] is None for p in s["points"] if p["fit"] is not None
     ]
-    layers: list[dict] = [
-        {
-            "data": {"name": "points"},
-            "mark": {
-                "type": "point",
-                "filled": False,
-                "size": MARKER_SIZE,
-                "strokeWidth": MARKER_STROKE,
-            },
-            "encoding": {
-                # Shape repeats the colour so groups part without colour vision (and in
-                # print); one legend, as both scales share the groups and the title.
-                "shape": look["shape"],
-                "x": x,
-                "y": {
-                    "field": "y",
-                    "type": "quantitative",
-                    "title": y_title,
-                    "scale": {"zero": False},
-                },
-                "color": colour,
-                "opacity": focus_opacity(full=0.8),
-                "tooltip": [
-                    {"field": "group", "type": "nominal", "title": group_by or "Group"},
-                    {
-                        "field": "x_value" if jitter else "x",
-                        "type": "quantitative",
-                        "title": scatter["x"],
-                    },
-                    {"field": "y", "type": "quantitative", "title": y_title},
-                ],
-            },
-        }
+    fit = alt.Y(field="fit", type="quantitative")
+    layers = [
+        alt.Chart(alt.NamedData(name="points"))
+        .mark_point(filled=False, size=MARKER_SIZE, strokeWidth=MARKER_STROKE)
+        .encode(
+            # Shape repeats the colour so groups part without colour vision (and in print);
+            # one legend, as both scales share the groups and the title.
+            shape=alt.Shape(**look["shape"]),
+            x=x,
+            y=alt.Y(field="y", type="quantitative", title=y_title, scale=alt.Scale(zero=False)),
+            color=colour,
+            opacity=dimmed_unless_picked(full=0.8),
+            tooltip=[
+                alt.Tooltip(field="group", type="nominal", title=group_by or "Group"),
+                alt.Tooltip(
+                    field="x_value" if jitter else "x", type="quantitative", title=scatter["x"]
+                ),
+                alt.Tooltip(field="y", type="quantitative", title=y_title),
+            ],
+        )
     ]
     # Named datasets: each curve's rows are shipped once and shared by its band and line layers.
     datasets = {"points": points, "curves": group_curves, "overall": overall}
-    has_band = {"filter": "isValid(datum.low) && isValid(datum.high)"}
+    has_band = "isValid(datum.low) && isValid(datum.high)"
+    band = {"y": alt.Y(field="low", type="quantitative"), "y2": alt.Y2(field="high")}
     if group_curves and group_bands:
         layers.append(
-            {
-                "data": {"name": "curves"},
-                "transform": [has_band],
-                "mark": {"type": "area"},
-                "encoding": {
-                    "x": x,
-                    "y": {"field": "low", "type": "quantitative"},
-                    "y2": {"field": "high"},
-                    "color": colour,
-                    "opacity": focus_opacity(full=0.12),
-                },
-            }
+            alt.Chart(alt.NamedData(name="curves"))
+            .transform_filter(has_band)
+            .mark_area()
+            .encode(x=x, color=colour, opacity=dimmed_unless_picked(full=0.12), **band)
         )
     if group_curves:
         layers.append(
-            {
-                "data": {"name": "curves"},
-                "mark": {"type": "line", "strokeWidth": 2.2},
-                "encoding": {
-                    "x": x,
-                    "y": {"field": "fit", "type": "quantitative"},
-                    "color": colour,
-                    "detail": {"field": "group", "type": "nominal"},
-                    "opacity": focus_opacity(),
-                },
-            }
+            alt.Chart(alt.NamedData(name="curves"))
+            .mark_line(strokeWidth=2.2)
+            .encode(
+                x=x,
+                y=fit,
+                color=colour,
+                detail=alt.Detail(field="group", type="nominal"),
+                opacity=dimmed_unless_picked(),
+            )
         )
     if overall:
+        overall_data = alt.NamedData(name="overall")
         layers.append(
-            {
-                "data": {"name": "overall"},
-                "transform": [has_band],
-                "mark": {"type": "area", "color": INK, "opacity": 0.15},
-                "encoding": {
-                    "x": x,
-                    "y": {"field": "low", "type": "quantitative"},
-                    "y2": {"field": "high"},
-                },
-            }
+            alt.Chart(overall_data)
+            .transform_filter(has_band)
+            .mark_area(color=INK, opacity=0.15)
+            .encode(x=x, **band)
         )
         # A white casing under the all-rows smooth keeps it apart from the group lines.
         layers.append(
-            {
-                "data": {"name": "overall"},
-                "mark": {"type": "line", "color": "#ffffff", "strokeWidth": 5.5},
-                "encoding": {"x": x, "y": {"field": "fit", "type": "quantitative"}},
-            }
+            alt.Chart(overall_data).mark_line(color="#ffffff", strokeWidth=5.5).encode(x=x, y=fit)
         )
         layers.append(
-            {
-                "data": {"name": "overall"},
-                "mark": {"type": "line", "color": INK, "strokeWidth": 3},
-                "encoding": {
-                    "x": x,
-                    "y": {"field": "fit", "type": "quantitative"},
-                    "tooltip": [
-                        {"field": "x", "type": "quantitative", "title": scatter["x"]},
-                        {"field": "fit", "type": "quantitative", "title": "smooth, all rows"},
-                        {"field": "low", "type": "quantitative", "title": "band low"},
-                        {"field": "high", "type": "quantitative", "title": "band high"},
-                    ],
-                },
-            }
+            alt.Chart(overall_data)
+            .mark_line(color=INK, strokeWidth=3)
+            .encode(
+                x=x,
+                y=fit,
+                tooltip=[
+                    alt.Tooltip(field="x", type="quantitative", title=scatter["x"]),
+                    alt.Tooltip(field="fit", type="quantitative", title="smooth, all rows"),
+                    alt.Tooltip(field="low", type="quantitative", title="band low"),
+                    alt.Tooltip(field="high", type="quantitative", title="band high"),
+                ],
+            )
         )
     if line and line["slope"] is not None and overall:
         lo, hi = overall[0]["x"], overall[-1]["x"]
         ends = [{"x": v, "fit": line["intercept"] + line["slope"] * v} for v in (lo, hi)]
         layers.append(
-            {
-                "data": {"values": ends},
-                "mark": {"type": "line", "color": MUTED, "strokeDash": [6, 4], "strokeWidth": 1.6},
-                "encoding": {"x": x, "y": {"field": "fit", "type": "quantitative"}},
-            }
+            alt.Chart(alt.Data(values=ends))
+            .mark_line(color=MUTED, strokeDash=[6, 4], strokeWidth=1.6)
+            .encode(x=x, y=fit)
         )
-    spec = {
-        "width": "container",
-        "height": 300,
-        "datasets": datasets,
-        "layer": layers,
-        "usermeta": {"measure": y_title, "kind": "scatter"},
-    }
-    return themed(with_focus(spec, groups))
+    chart = (
+        alt.layer(*layers)
+        .properties(
+            width="container",
+            height=300,
+            usermeta={"measure": y_title, "kind": "scatter", "groups": list(groups)},
+        )
+        .add_params(focus_param())
+    )
+    return to_spec(chart, datasets)

@@ -7,11 +7,16 @@ from .theme import (
     MARKER_SIZE,
     MARKER_STROKE,
     MUTED,
+    altair,
+    dashed_when_few,
+    dimmed_unless_picked,
     edge_arrows,
     focus_opacity,
+    focus_param,
     group_colour_scale,
     group_encoding,
     themed,
+    to_spec,
     with_focus,
 )
 
@@ -111,91 +116,71 @@ def mean_intervals(
     groups = group_encoding(all_groups, group_by, reference, legend=False)
     y = _group_axis(shown)
     fmt = value_format(rows)
+    alt = altair()
     tooltip = [
-        {"field": "group", "title": group_by or "Group"},
-        {"field": "mean", "title": f"Mean {measure}", "format": fmt},
-        {"field": "low", "title": "CI low", "format": fmt},
-        {"field": "high", "title": "CI high", "format": fmt},
-        {"field": "n", "title": "n"},
+        alt.Tooltip(field="group", type="nominal", title=group_by or "Group"),
+        alt.Tooltip(field="mean", type="quantitative", title=f"Mean {measure}", format=fmt),
+        alt.Tooltip(field="low", type="quantitative", title="CI low", format=fmt),
+        alt.Tooltip(field="high", type="quantitative", title="CI high", format=fmt),
+        alt.Tooltip(field="n", type="quantitative", title="n"),
     ]
-    x_scale = {"zero": False, "nice": False}
-    if extent is not None:
-        x_scale["domain"] = list(extent)
-    layers = [
-        {
-            "transform": [{"filter": "isValid(datum.draw_low) && isValid(datum.draw_high)"}],
-            "mark": {"type": "rule", "strokeWidth": 2.5, "clip": True},
-            "encoding": {
-                "x": {
-                    "field": "draw_low",
-                    "type": "quantitative",
-                    "title": measure,
-                    "scale": x_scale,
-                },
-                "x2": {"field": "draw_high"},
-                "color": groups["color"],
-                "strokeDash": {
-                    "condition": {"test": "datum.few", "value": [3, 3]},
-                    "value": [1, 0],
-                },
-                "opacity": focus_opacity(),
-                "tooltip": tooltip,
-            },
-        },
-        {
-            "mark": {
-                "type": "point",
-                "filled": True,
-                "size": MARKER_SIZE * 1.3,
-                "strokeWidth": MARKER_STROKE + 0.4,
-                "clip": True,
-            },
-            "encoding": {
-                "x": {"field": "mean", "type": "quantitative"},
-                "stroke": groups["color"],
-                # Filled in the group's colour; a group too small to trust is left hollow.
-                "fill": {
-                    "condition": {"test": "datum.few", "value": "#ffffff"},
-                    **groups["color"],
-                },
-                "shape": groups["shape"],
-                "opacity": focus_opacity(few=True),
-                "tooltip": tooltip,
-            },
-        },
-    ]
-    layers.extend(
-        edge_arrows(
-            arrows,
-            {
-                "tooltip": [
-                    {"field": "group", "title": group_by or "Group"},
-                    {"field": "n", "title": "n"},
-                ]
-            },
-            MUTED,
+    x_scale = alt.Scale(zero=False, nice=False, **({"domain": list(extent)} if extent else {}))
+    y = alt.Y(field="group", type="nominal", scale=alt.Scale(domain=shown), title=None)
+    colour = alt.Color(**groups["color"])
+    interval = (
+        alt.Chart()
+        .transform_filter("isValid(datum.draw_low) && isValid(datum.draw_high)")
+        .mark_rule(strokeWidth=2.5, clip=True)
+        .encode(
+            x=alt.X(field="draw_low", type="quantitative", title=measure, scale=x_scale),
+            x2=alt.X2(field="draw_high"),
+            y=y,
+            color=colour,
+            strokeDash=dashed_when_few(),
+            opacity=dimmed_unless_picked(),
+            tooltip=tooltip,
         )
     )
-    return themed(
-        with_focus(
-            {
-                "data": {"values": values},
-                # A fixed height of one row per group (a "step" height would make Vega-Lite
-                # drop the fit to the container's width with a warning).
-                "height": ROW_HEIGHT * max(1, len(shown)),
-                "width": "container",
-                "encoding": {"y": y},
-                "layer": layers,
-                "usermeta": {"measure": measure, "kind": "means"},
-            },
-            all_groups,
+    # Filled in the group's colour; a group too small to trust is left hollow.
+    mean = (
+        alt.Chart()
+        .mark_point(filled=True, size=MARKER_SIZE * 1.3, strokeWidth=MARKER_STROKE + 0.4, clip=True)
+        .encode(
+            x=alt.X(field="mean", type="quantitative"),
+            y=y,
+            stroke=alt.Stroke(**groups["color"]),
+            fill=alt.Fill(**groups["color"], condition={"test": "datum.few", "value": "#ffffff"}),
+            shape=alt.Shape(**groups["shape"]),
+            opacity=dimmed_unless_picked(few=True),
+            tooltip=tooltip,
         )
     )
+    arrows = edge_arrows(
+        arrows,
+        {
+            "y": y,
+            "tooltip": [
+                alt.Tooltip(field="group", type="nominal", title=group_by or "Group"),
+                alt.Tooltip(field="n", type="quantitative", title="n"),
+            ],
+        },
+        MUTED,
+    )
+    chart = (
+        alt.layer(interval, mean, *arrows, data=alt.NamedData(name="means"))
+        .properties(
+            # A fixed height of one row per group (a "step" height would make Vega-Lite drop
+            # the fit to the container's width with a warning).
+            height=ROW_HEIGHT * max(1, len(shown)),
+            width="container",
+            usermeta={"measure": measure, "kind": "means", "groups": list(all_groups)},
+        )
+        .add_params(focus_param())
+    )
+    return to_spec(chart, {"means": values})
 
 
-HIST_WIDTH = (
-    800  # px per histogram panel (faceted views cannot fill the box); narrow screens scroll
-)
+HIST_WIDTH = 800  # px per histogram panel; the page's script narrows it to the box
 
 
 def histograms(

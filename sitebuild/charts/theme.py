@@ -3,7 +3,9 @@
 from __future__ import annotations
 
 import copy
+import functools
 import math
+import os
 
 # Our group palette, in our own order: crimson, teal, ochre, violet, sky, brown, navy, orange.
 # Chosen so that every two of them, and each against the neutral reference grey, stay at least
@@ -304,25 +306,73 @@ def with_focus(spec: dict, groups: list[str] | None = None) -> dict:
     return out
 
 
-def edge_arrows(arrows: list[dict], encoding: dict, colour: str = INK) -> list[dict]:
-    """Return point layers marking intervals cut at the axis' edge: a left-pointing triangle
-    for rows of ``arrows`` with ``shape`` "triangle-left", a right-pointing one for the rest.
-    One layer per side, and only for a side that has rows (an empty layer makes Vega warn)."""
+def edge_arrows(arrows: list[dict], encoding: dict, colour: str = INK) -> list:
+    """Return altair point layers marking intervals cut at the axis' edge: a left-pointing
+    triangle for rows of ``arrows`` with ``shape`` "triangle-left", a right-pointing one for
+    the rest; ``encoding`` adds channels (y, tooltip). One layer per side, and only for a side
+    that has rows (an empty layer makes Vega warn)."""
+    alt = altair()
     layers = []
     for shape in ("triangle-left", "triangle-right"):
         rows = [a for a in arrows if a["shape"] == shape]
         if rows:
             layers.append(
-                {
-                    "data": {"values": rows},
-                    "mark": {
-                        "type": "point",
-                        "filled": True,
-                        "size": 60,
-                        "shape": shape,
-                        "color": colour,
-                    },
-                    "encoding": {"x": {"field": "edge", "type": "quantitative"}, **encoding},
-                }
+                alt.Chart(alt.Data(values=rows))
+                .mark_point(filled=True, size=60, shape=shape, color=colour)
+                .encode(x=alt.X(field="edge", type="quantitative"), **encoding)
             )
     return layers
+
+
+def dimmed_unless_picked(few: bool = False, full: float = 1.0):
+    """Return an altair opacity rule: ``full`` for the picked group (or when none is picked),
+    faint for the others; with ``few``, rows flagged ``few`` at :data:`FEW_OPACITY`."""
+    conditions = [{"test": f"{FOCUS} != null && datum.group !== {FOCUS}", "value": DIMMED}]
+    if few:
+        conditions.append({"test": "datum.few", "value": FEW_OPACITY * full})
+    # A channel object, not alt.when(): that path re-reads the schema (about 60 ms a call).
+    return altair().OpacityValue(condition=conditions, value=full)
+
+
+def dashed_when_few():
+    """Return an altair stroke-dash rule: dashed for rows flagged ``few``, solid otherwise."""
+    return altair().StrokeDashValue(condition={"test": "datum.few", "value": [3, 3]}, value=[1, 0])
+
+
+# Charts are made with altair and turned into Vega-Lite dicts at build time. Altair is imported
+# on first use only (about 1.6 s on an idle machine), so --help, check and a rebuild that
+# draws nothing never pay for it. Checking every spec against the Vega-Lite schema costs about
+# 40 % more per chart (8 ms of 21 ms CPU, benchmarks/chart_build.py): on in the tests
+# (SITEBUILD_CHECK_CHARTS=1), off in builds.
+CHECK_CHARTS_ENV = "SITEBUILD_CHECK_CHARTS"
+
+
+@functools.cache
+def altair():
+    """Return the altair module with our look registered and enabled (once per process)."""
+    import altair as alt
+
+    @alt.theme.register("sitebuild", enable=True)
+    def _look():
+        return {"config": copy.deepcopy(CONFIG)}
+
+    return alt
+
+
+def to_spec(chart, datasets: dict | None = None) -> dict:
+    """Return an altair chart as a themed Vega-Lite dict (see :func:`themed`), with
+    ``datasets`` (name -> records) as its named data.
+
+    The records are added after altair has made the dict: altair copies and walks every value
+    it is given, which for a few thousand points costs more than the rest of the chart.
+    """
+    check = os.environ.get(CHECK_CHARTS_ENV) == "1"
+    spec = chart.to_dict(validate=check)
+    if datasets:
+        spec["datasets"] = {**spec.get("datasets", {}), **datasets}
+    return themed(spec)
+
+
+def focus_param():
+    """Return the page-wide ``focus`` variable parameter as an altair parameter."""
+    return altair().param(name=FOCUS, value=None)
