@@ -134,3 +134,33 @@ def test_the_legend_is_titled_with_the_group_column():
 def test_markers_are_outlined_and_larger_than_the_default():
     assert CONFIG["point"]["filled"] is False
     assert CONFIG["point"]["size"] >= 60 and CONFIG["point"]["strokeWidth"] >= 1.5
+
+
+def test_altair_is_imported_only_when_a_chart_is_made():
+    # Help and check never draw: they must not pay altair's import (about 1.6 s).
+    import subprocess
+    import sys
+
+    code = (
+        "import sys\n"
+        "from sitebuild.cli import main\n"
+        "try:\n    main(['--help'])\nexcept SystemExit:\n    pass\n"
+        "import sitebuild.charts.summary, sitebuild.charts.comparisons\n"
+        "print('altair' in sys.modules)\n"
+    )
+    done = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True)
+    assert done.stdout.strip().splitlines()[-1] == "False"
+
+
+def test_charts_are_checked_against_the_schema_in_the_tests(monkeypatch):
+    from sitebuild.charts.theme import altair, to_spec
+
+    alt = altair()
+    bad = (
+        alt.Chart(alt.Data(values=[{"x": 1}])).mark_point().encode(x=alt.X(field="x", type="nope"))
+    )
+    monkeypatch.setenv("SITEBUILD_CHECK_CHARTS", "1")
+    with pytest.raises(Exception, match="nope"):
+        to_spec(bad)
+    monkeypatch.setenv("SITEBUILD_CHECK_CHARTS", "0")
+    assert to_spec(bad)["encoding"]["x"]["type"] == "nope"  # builds skip the check
