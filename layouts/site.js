@@ -120,6 +120,15 @@
     var s = String(text || "").normalize("NFKD").replace(/[\u0300-\u036f]/g, "").toLowerCase();
     return s.replace(/[^a-z0-9]+/g, "-").replace(/^-+|-+$/g, "").slice(0, 60);
   }
+  // The build date: printed on reproducible builds (SOURCE_DATE_EPOCH), else the date the page
+  // file was written, which for a built site is the build's.
+  function builtOn(meta) {
+    if (meta.built) { return meta.built; }
+    var when = new Date(document.lastModified);
+    if (isNaN(when.getTime())) { return "(date unknown)"; }
+    var pad2 = function (n) { return (n < 10 ? "0" : "") + n; };
+    return when.getFullYear() + "-" + pad2(when.getMonth() + 1) + "-" + pad2(when.getDate());
+  }
   // The chart as a PNG with a title band (title; dataset and measure; build date) for slides.
   function picture(id) {
     var view = views[id], meta = metas[id] || {};
@@ -150,7 +159,7 @@
       ctx.drawImage(chart, pad, band + pad / 2);
       ctx.font = 11 * scale + "px system-ui, sans-serif";
       ctx.fillStyle = "#8a94a0";
-      ctx.fillText(meta.built ? "Built " + meta.built : "", pad, canvas.height - 8 * scale);
+      ctx.fillText("Built " + builtOn(meta), pad, canvas.height - 8 * scale);
       var name = [slug(meta.dataset_slug || meta.dataset), slug(meta.measure), meta.kind || ""]
         .filter(Boolean).join("-") || id;
       return { url: canvas.toDataURL("image/png"), name: name + ".png" };

@@ -231,7 +231,7 @@ def histograms(
                     "y": {
                         "field": "share",
                         "type": "quantitative",
-                        "title": "Share",
+                        "title": None,  # it would repeat over every panel; the description says "share"
                         "axis": {"format": "~%", "tickCount": 2},
                     },
                     "row": {
