@@ -444,7 +444,7 @@ def build(
     """
     from .changes import compare, core, extend_history
     from .site import publish
-    from .site.render import build_time
+    from .site.render import build_time, data_time
 
     started = time.perf_counter()
     say = _progress(progress, quiet, started)
@@ -522,7 +522,9 @@ def build(
             changes, history = previous["changes"], previous["history"][-manifest.site.history :]
         else:
             changes = compare(previous and core(previous), computed)
-            history = extend_history(previous, computed, manifest.site.history, build_time())
+            # Dated by SOURCE_DATE_EPOCH, else by the data files' newest modification time.
+            dated = build_time() or data_time(manifest)
+            history = extend_history(previous, computed, manifest.site.history, dated)
         results = {**computed, "changes": changes, "history": history}
         if numbers_changed:
             report_changes = tuple(changes["summary"])

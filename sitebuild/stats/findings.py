@@ -131,13 +131,15 @@ def measure_unit(measure: str) -> str:
     --------
     >>> measure_unit("leaf mass (g)"), measure_unit("germinated (%)"), measure_unit("score")
     ('g', 'percentage points', '')
+    >>> measure_unit("taste score (1–5)")
+    ''
     """
     match = re.search(r"[(\[]\s*([^()\[\]]{1,12}?)\s*[)\]]\s*$", measure)
     if not match:
         return ""
     unit = match.group(1)
-    if not re.search(r"[^\d\s.,+-]", unit):
-        return ""  # "value[0]" is an index, not a unit
+    if not re.search(r"[^\d\s.,+\-–—]", unit):
+        return ""  # "value[0]" is an index and "score (1–5)" a scale range, not units
     return "percentage points" if unit == "%" else unit
 
 
