@@ -216,6 +216,15 @@ def _open(browser, url, width=1200):
     return page
 
 
+def _reveal(page, selector):
+    """Open the folded parts holding ``selector``, as a reader would, and return its locator."""
+    page.eval_on_selector(
+        selector,
+        "el => { for (let d = el.closest('details'); d; d = d.parentElement.closest('details')) d.open = true; }",
+    )
+    return page.locator(selector)
+
+
 # Opacity of every mark item of one group in one chart, read back from its Vega view.
 OPACITIES = """([id, group]) => {
   const view = window.sitebuildCharts.views[id];
@@ -238,7 +247,7 @@ def test_picking_a_group_highlights_it_in_every_chart(browser, twelve):
     before = page.evaluate(OPACITIES, ["rel-scatter-1", "Line B"])
     assert before and min(before) > 0.5
     # Keyboard: the summary table's row for Line C, then Enter.
-    row = page.locator('#tbl-sum-0 tr[data-pick="Line C"]')
+    row = _reveal(page, '#tbl-sum-0 tr[data-pick="Line C"]')
     row.focus()
     page.keyboard.press("Enter")
     page.wait_for_timeout(300)
@@ -303,8 +312,9 @@ def test_the_downloaded_picture_carries_a_title_band_and_a_telling_name(browser,
     box = page.eval_on_selector(
         '[data-chart="sum-0-means"] svg', "s => [s.width.baseVal.value, s.height.baseVal.value]"
     )
+    button = _reveal(page, 'button[data-for="sum-0-means"]')
     with page.expect_download() as info:
-        page.click('button[data-for="sum-0-means"]')
+        button.click()
     download = info.value
     assert download.suggested_filename == "filling-lines-fill-weight-g-means.png"
     width, height = _png_size(open(download.path(), "rb").read())
