@@ -21,9 +21,12 @@ SCATTER_LIMIT = 1_500  # points shipped per scatter chart (keeps a 1M-row site u
 SCATTER_BUDGET = 16_000  # points shipped over all scatter charts of a page (wide tables)
 WIDE_PAIRS = 45  # more column pairs than this (over 10 columns) makes a table "wide"
 PAIR_SMOOTH_LIMIT = 50_000  # rows used for the measure-against-measure curvature check
+# The two group limits of this section; README "Limits" quotes both (tests/test_audit_fixes.py
+# checks that it does).
 GROUP_LIMIT = 30  # within-group correlation tables for at most this many groups
 # Per-group smooths and heatmaps for at most this many (the largest) groups: the palette has 8
-# colours, and more curves on one scatter cannot be told apart anyway.
+# colours, and more curves on one scatter cannot be told apart anyway. This is the one place
+# the within-group smooth limit is set.
 DRAWN_LIMIT = 8
 METHOD_LABELS = {"pearson": "Pearson r", "spearman": "Spearman rho", "kendall": "Kendall tau-b"}
 
@@ -117,8 +120,8 @@ def _correlations(table, names, settings, rng, chosen: list[int]) -> tuple[list[
                 )
                 if c.reason:
                     note += f"; {c.reason}"
-            elif c.r is not None and c.method == "kendall" and c.reason:
-                note = c.reason
+            elif c.r is not None and c.reason:
+                note = c.reason  # e.g. Kendall's tau-b or Spearman's rho = ±1
             elif c.r is not None and c.ci_low is None:
                 note = "the interval needs at least 4 pairs"
             if c.p is not None and c.ci_low is not None and c.ci_high is not None:
@@ -274,6 +277,8 @@ def _smooth_entry(group, x_name, y_name, fit) -> dict:
     note = fit.reason
     if fit.binned and not note:
         note = "fitted on binned data (all rows used)"
+    if fit.fallback:
+        note = f"{note}; {fit.fallback}" if note else fit.fallback
     return {
         "group": group,
         "x": x_name,
@@ -288,6 +293,7 @@ def _smooth_entry(group, x_name, y_name, fit) -> dict:
         "lookup_df": _num(fit.lookup_df),
         "level": fit.level,
         "binned": bool(fit.binned),
+        "fallback": fit.fallback,  # where the local fit became a local mean or blank, and why
         "note": note,
         "points": points,
     }
@@ -502,6 +508,11 @@ def charts(dataset: dict, settings) -> list[Chart]:
                         "all rows"
                     )
                     + ", and the straight-line fit for all rows."
+                    + "".join(
+                        f" Smooth for {s['group'] or 'all rows'}: {s['fallback']}."
+                        for s in smooths
+                        if s.get("fallback")
+                    )
                 ),
                 spec=scatter_with_smooths(
                     scatter,

@@ -212,6 +212,30 @@ def _ranks_from_order(
     return out
 
 
+PERFECT_RANKS_REASON = (
+    "no interval or p-value when the ranks agree perfectly (rho = ±1): the Fisher-z interval "
+    "collapses to a point and the t approximation gives p = 0, neither of which is a real "
+    "uncertainty; read Kendall's tau-b p-value for the same pair"
+)
+
+
+def _perfect_ranks(rx: np.ndarray, ry: np.ndarray) -> bool:
+    """True when two rank vectors (same complete rows) agree or disagree perfectly.
+
+    Exact on the ranks, so a nearly perfect rho of a million values (1 − rho ~ 1e-17, below
+    double precision) is not mistaken for a perfect one.
+    """
+    n = rx.size
+    return bool(np.array_equal(rx, ry) or np.array_equal(rx, (n + 1) - ry))
+
+
+def _perfect_spearman(r: float, n: int, level: float) -> Correlation:
+    """Spearman's rho = ±1: the coefficient, with no interval or p-value and the reason."""
+    return Correlation(
+        "spearman", n, float(np.sign(r)), None, None, None, level, None, PERFECT_RANKS_REASON
+    )
+
+
 def spearman(x, y, level: float = 0.95) -> Correlation:
     """Return Spearman's rho with a Fisher-z interval (Bonett–Wright standard error) and p.
 
@@ -220,6 +244,8 @@ def spearman(x, y, level: float = 0.95) -> Correlation:
     rho is Pearson's r of the average ranks. Interval: tanh(atanh(rho) -/+ z se) with
     se = sqrt((1 + rho^2 / 2) / (n - 3)) (Bonett & Wright 2000). p-value from the same t
     approximation as scipy.stats.spearmanr: t = rho sqrt((n - 2) / (1 - rho^2)), n - 2 df.
+    When the ranks agree perfectly (rho = ±1) the interval and p-value are None with a
+    reason, as for Kendall's tau-b = ±1 (the formulas would give the interval [1, 1], p = 0).
 
     References
     ----------
@@ -237,8 +263,11 @@ def spearman(x, y, level: float = 0.95) -> Correlation:
     if undefined is not None:
         return undefined
     n = int(x.size)
-    inner = pearson(rank_average(x), rank_average(y))
+    rx, ry = rank_average(x), rank_average(y)
+    inner = pearson(rx, ry)
     r = float(inner.r)
+    if _perfect_ranks(rx, ry):
+        return _perfect_spearman(r, n, level)
     se = np.sqrt((1.0 + r * r / 2.0) / (n - 3)) if n > 3 else 0.0
     return _finish("spearman", r, n, level, inner.p, se, "fisher-z, Bonett-Wright SE")
 
@@ -427,6 +456,11 @@ def _scope_table(
                 pairs.append((i, j, _undefined(method, nij, level, f"{which} has no variation")))
                 continue
             rij = float(r[i, j])
+            if method == "spearman" and abs(rij) > 1.0 - 1e-9:
+                rows = ~np.isnan(source[:, i]) & ~np.isnan(source[:, j])
+                if _perfect_ranks(source[rows, i], source[rows, j]):
+                    pairs.append((i, j, _perfect_spearman(rij, nij, level)))
+                    continue
             p = float(_t_pvalue(np.array(rij), np.array(nij)))
             if method == "pearson":
                 se = 1.0 / np.sqrt(nij - 3) if nij > 3 else 0.0
