@@ -243,7 +243,7 @@ STREAM_DRIVER = """
 import json, sys, time
 started = time.perf_counter()
 from sitebuild.manifest import load_manifest
-from sitebuild.ingest import read_table
+from sitebuild.engines import read_table
 from sitebuild.sections import summaries
 manifest = load_manifest(sys.argv[1])
 stages = {}

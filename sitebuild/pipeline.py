@@ -8,7 +8,6 @@ from __future__ import annotations
 
 import dataclasses
 import hashlib
-import importlib
 import json
 import os
 import sys
@@ -30,7 +29,7 @@ from .cache import (
 )
 from .errors import SitebuildError
 from .manifest import Manifest, load_manifest
-from .sections import PARALLEL_ROWS, SECTION_NAMES
+from .sections import PARALLEL_ROWS, section_modules
 
 
 @dataclass(frozen=True)
@@ -122,9 +121,22 @@ class Timer:
             self.stages[name] = self.stages.get(name, 0.0) + time.perf_counter() - start
 
 
-def section_modules() -> list:
-    """Return the section modules in page order."""
-    return [importlib.import_module(f"sitebuild.sections.{name}") for name in SECTION_NAMES]
+@contextmanager
+def one_blas_thread():
+    """Run the block with the BLAS library (behind numpy's dot and matrix products) on one thread.
+
+    Why: a threaded BLAS splits a long dot product between its threads, so the rounding of
+    every sum of squares depended on how many cores the machine had (results.json differed
+    in the last digits between machines), and its spinning threads fought the analysis
+    threads for the cores: a 125,000-value dot took 30 times longer on a busy 2-core machine.
+    """
+    # The limit applies to the BLAS libraries already loaded: numpy's, and scipy's own.
+    import numpy  # noqa: F401
+    import scipy.linalg  # noqa: F401
+    from threadpoolctl import threadpool_limits
+
+    with threadpool_limits(limits=1, user_api="blas"):
+        yield
 
 
 def dataset_rng(seed: int, dataset: str, section: int):
@@ -245,7 +257,7 @@ def resolve_out(manifest: Manifest, out: str | Path | None) -> Path:
 
 def check(project: str | Path, out: str | Path | None = None) -> CheckReport:
     """Validate the manifest and read every dataset; write nothing."""
-    from .ingest import read_table
+    from .engines import read_table
     from .site.publish import check_target
 
     manifest = load_manifest(project)
@@ -485,18 +497,19 @@ def build(
                 if say:
                     say(f"{spec.name}: unchanged, results reused")
                 continue
-            from .ingest import read_table
+            from .engines import read_table
             from .results import clean
 
             if say:
                 say(f"{spec.name}: reading {spec.file}")
-            with timer.stage("read"):
-                table = read_table(
-                    spec, rng=dataset_rng(manifest.site.seed, spec.name, 99), sha256=sha
-                )
-            if say:
-                say(f"{spec.name}: {table.report.rows_used:,} rows ready")
-            ds = clean(analyse(table, manifest, timer, say))
+            with one_blas_thread():
+                with timer.stage("read"):
+                    table = read_table(
+                        spec, rng=dataset_rng(manifest.site.seed, spec.name, 99), sha256=sha
+                    )
+                if say:
+                    say(f"{spec.name}: {table.report.rows_used:,} rows ready")
+                ds = clean(analyse(table, manifest, timer, say))
             stopping.check()  # a stop whose KeyboardInterrupt a library swallowed
             # Through JSON and back, so fresh and cached results are the very same data.
             ds = json.loads(canonical(ds))
@@ -525,7 +538,9 @@ def build(
             # Dated by SOURCE_DATE_EPOCH, else by the data files' newest modification time.
             dated = build_time() or data_time(manifest)
             history = extend_history(previous, computed, manifest.site.history, dated)
-        results = {**computed, "changes": changes, "history": history}
+        from .results import stamped
+
+        results = stamped({**computed, "changes": changes, "history": history})
         if numbers_changed:
             report_changes = tuple(changes["summary"])
         else:
@@ -546,7 +561,10 @@ def build(
 
                 if say:
                     say("rendering pages")
-                bundle = cache.chart_bundle(render.chart_bundle)
+                from .site.chart_script import chart_script
+
+                # Made once per user and installed version, not per project or build.
+                bundle = chart_script(render.chart_bundle)
                 memo = PageMemo(cache, manifest, results, checksums)
                 files = render.render_site(results, manifest, bundle=bundle, pages=memo)
                 if say and memo.reused:

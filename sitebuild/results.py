@@ -6,25 +6,38 @@ import json
 import math
 from importlib import resources
 
-import numpy as np
+# Raised whenever a key of results.json is renamed, removed or changes meaning (adding an
+# optional key does not raise it). Readers check it before reading keys by name.
+SCHEMA_VERSION = 1
+SCHEMA_FILE = "results.schema.json"  # shipped beside results.json in every site
 
 
 def clean(value):
     """Return ``value`` with numpy scalars made plain and NaN/Infinity made None (recursively)."""
-    if isinstance(value, dict):
-        return {str(k): clean(v) for k, v in value.items()}
-    if isinstance(value, list | tuple):
-        return [clean(v) for v in value]
-    if isinstance(value, bool | np.bool_):
-        return bool(value)
-    if isinstance(value, int | np.integer):
-        return int(value)
-    if isinstance(value, float | np.floating):
-        value = float(value)
-        return value if math.isfinite(value) else None
-    if isinstance(value, np.ndarray):
-        return clean(value.tolist())
-    return value
+    import numpy as np  # here, not at the top: a no-op rebuild stamps results without numpy
+
+    def walk(value):
+        if isinstance(value, dict):
+            return {str(k): walk(v) for k, v in value.items()}
+        if isinstance(value, list | tuple):
+            return [walk(v) for v in value]
+        if isinstance(value, bool | np.bool_):
+            return bool(value)
+        if isinstance(value, int | np.integer):
+            return int(value)
+        if isinstance(value, float | np.floating):
+            value = float(value)
+            return value if math.isfinite(value) else None
+        if isinstance(value, np.ndarray):
+            return walk(value.tolist())
+        return value
+
+    return walk(value)
+
+
+def stamped(results: dict) -> dict:
+    """Return ``results`` headed by ``$schema`` (the schema file beside it) and ``schema_version``."""
+    return {"$schema": SCHEMA_FILE, "schema_version": SCHEMA_VERSION, **results}
 
 
 def dumps(results: dict) -> str:

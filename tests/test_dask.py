@@ -13,8 +13,8 @@ import pandas as pd
 import pytest
 from scipy import stats
 
+from sitebuild.engines import read_table
 from sitebuild.engines.dask import DaskRunner, read_with_dask
-from sitebuild.ingest import read_table
 from sitebuild.manifest import DatasetSpec, SiteSettings
 from sitebuild.results import clean
 from sitebuild.sections import summaries

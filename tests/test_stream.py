@@ -15,7 +15,8 @@ import pandas as pd
 import pytest
 from scipy import stats
 
-from sitebuild.ingest import engine_for, read_table
+from sitebuild.engines import read_table
+from sitebuild.ingest import engine_for
 from sitebuild.manifest import DatasetSpec, SiteSettings
 from sitebuild.results import clean
 from sitebuild.sections import summaries

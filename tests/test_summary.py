@@ -143,6 +143,21 @@ def test_histogram_edges_are_bounded():
     assert len(histogram_edges(np.array([1.0, 1.0]))) == 2
 
 
+@pytest.mark.parametrize("name", SAMPLES)
+def test_midrange_matches_numpy(name):
+    # Reference: (numpy.min + numpy.max) / 2 on the same values.
+    x = SAMPLES[name]
+    assert describe(x).midrange == pytest.approx((np.min(x) + np.max(x)) / 2, rel=1e-15)
+
+
+def test_midrange_near_the_largest_double_does_not_overflow():
+    # Reference: exact rational arithmetic ((a + b) / 2 in float64 overflows to inf here).
+    x = np.array([1.7e308, 1.79e308, 1.6e308])
+    exact = (Fraction(1.6e308) + Fraction(1.79e308)) / 2
+    assert describe(x).midrange == float(exact)
+    assert describe(np.array([])).midrange is None
+
+
 @pytest.mark.parametrize(
     "name, centre",
     [("NumAcc2", 1.2), ("NumAcc3", 1000000.2), ("NumAcc4", 10000000.2)],
@@ -171,7 +186,7 @@ def test_share_within_sd_still_leaves_out_values_clearly_beyond():
 def test_numacc3_share_within_one_sd_is_the_same_streamed(tmp_path, monkeypatch, engine_name):
     # NIST StRD univariate NumAcc3 (certified sd 0.1, every value 0 or 1 SD from the mean;
     # from memory), read from a CSV by each engine: both count every value within 1 SD.
-    from sitebuild.ingest import read_table
+    from sitebuild.engines import read_table
     from sitebuild.manifest import DatasetSpec, SiteSettings
     from sitebuild.sections import summaries
     from sitebuild.streaming import engine

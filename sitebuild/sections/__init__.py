@@ -14,6 +14,7 @@ A section module provides:
 
 from __future__ import annotations
 
+import importlib
 from dataclasses import dataclass
 
 SECTION_NAMES = ("summaries", "relationships", "comparisons")
@@ -21,6 +22,25 @@ MAX_CHART_GROUPS = 30  # groups drawn in distribution charts; tables keep every 
 # From this many rows the analysis uses two threads (below it, threads cost more than they
 # save); the heavy work is numpy sorting and searching, which releases the GIL.
 PARALLEL_ROWS = 200_000
+
+
+def section_modules() -> list:
+    """Return the section modules in page order (the build computes with them, the renderer
+    draws with them)."""
+    return [importlib.import_module(f"{__name__}.{name}") for name in SECTION_NAMES]
+
+
+def sampled_caption(dataset: dict, what: str) -> str:
+    """Return a sentence saying that ``what`` used the seeded row sample (streamed data only;
+    an empty string when every row was in memory)."""
+    source = dataset.get("computed_from") or {}
+    if source.get("sample_rows") is None:
+        return ""
+    return (
+        f" On this {source['engine']}-read dataset, {what} used a seeded sample of "
+        f"{source['sample_rows']:,} rows (at most {source['sample_per_group']:,} per group); "
+        "every other number here uses all rows."
+    )
 
 
 @dataclass(frozen=True)

@@ -39,12 +39,20 @@ import numpy as np
 from scipy import stats
 
 from ..stats import findings as findings_mod
+from ..stats.from_moments import brown_forsythe_from_stats, moment_sample
 from ..stats.letters import compact_letters
 from ..stats.multiplicity import METHOD_NAMES, adjust_pvalues
-from ..stats.omnibus import kruskal_wallis, one_way_anova, spread_test, welch_anova
+from ..stats.omnibus import (
+    GroupMoments,
+    kruskal_wallis,
+    one_way_anova,
+    spread_test,
+    welch_anova,
+)
 from ..stats.pairwise import (
     EXACT_MAX_N,
     Sample,
+    SharedRanks,
     cliffs_delta,
     detectable_difference,
     dominance_counts,
@@ -59,7 +67,7 @@ from ..stats.pairwise import (
     tukey_hsd,
     welch_t,
 )
-from . import PARALLEL_ROWS, DataTable
+from . import PARALLEL_ROWS, DataTable, sampled_caption
 
 MAX_PAIRWISE_GROUPS = 30
 MAX_DUNNETT_GROUPS = 30
@@ -138,6 +146,36 @@ def _strongly_skewed(n: int, skewness: float | None) -> bool:
     return abs(skewness) > max(SKEW_LIMIT, SKEW_SE_MULTIPLE * skewness_se(n))
 
 
+GROUP_ROW_KEYS = ("group", "n", "mean", "sd", "median", "min", "max", "skewness")
+
+
+def _group_row(summary_row: dict) -> dict:
+    """One group row of a comparison entry, taken from the summaries section's row."""
+    row = {key: summary_row[key] for key in GROUP_ROW_KEYS}
+    if row["n"] < 2:
+        row["sd"] = None
+    row["strongly_skewed"] = _strongly_skewed(row["n"], row["skewness"])
+    return row
+
+
+def _summary_group_rows(groups: Sequence[str], summaries: Sequence) -> list[dict]:
+    """The group rows from exact summaries (streamed data: every row, not the sample)."""
+    return [
+        {
+            "group": g,
+            "n": s.n,
+            "mean": _num(s.mean),
+            "sd": _num(s.sd) if s.n > 1 else None,
+            "median": _num(s.median),
+            "min": _num(s.min),
+            "max": _num(s.max),
+            "skewness": _num(s.skewness),
+            "strongly_skewed": _strongly_skewed(s.n, _num(s.skewness)),
+        }
+        for g, s in zip(groups, summaries, strict=True)
+    ]
+
+
 def _group_rows(groups: Sequence[str], samples: Sequence[Sample]) -> list[dict]:
     rows = []
     for g, s in zip(groups, samples, strict=True):
@@ -194,35 +232,25 @@ def residual_skew_check(samples: Sequence[Sample]) -> dict:
     return out
 
 
-class _TieTable:
-    """Counts of globally tied values per group, so a pair's tie term Σ(t³ − t) is cheap."""
-
-    def __init__(self, samples: Sequence[Sample]):
-        pooled = np.concatenate([s.sorted for s in samples])
-        values, counts = np.unique(pooled, return_counts=True)
-        tied = values[counts > 1]
-        self.any = tied.size > 0
-        self.per_group = []
-        if self.any:
-            for s in samples:
-                idx = np.searchsorted(tied, s.sorted)
-                idx = np.minimum(idx, tied.size - 1)
-                hit = tied[idx] == s.sorted
-                self.per_group.append(np.bincount(idx[hit], minlength=tied.size).astype(float))
-
-    def term(self, i: int, j: int) -> float:
-        if not self.any:
-            return 0.0
-        t = self.per_group[i] + self.per_group[j]
-        return float(np.sum(t**3 - t))
-
-
-def _omnibus(samples: list[Sample], ranks: list[np.ndarray]) -> tuple[list[dict], dict]:
+def _omnibus(
+    samples: list[Sample],
+    shared: SharedRanks,
+    moments: list[GroupMoments] | None = None,
+    spread_moments=None,
+) -> tuple[list[dict], dict]:
+    """The overall tests. Both ANOVAs from ``moments`` and Brown–Forsythe from
+    ``spread_moments`` (n, mean, variance of |x − median| per group) when given (streamed
+    data: every row); otherwise, and for Kruskal–Wallis always, from the values in
+    ``samples`` (the bounded sample on streamed data)."""
     arrays = [s.sorted for s in samples]
-    anova = one_way_anova(arrays)
-    welch = welch_anova(arrays)
-    kw = kruskal_wallis(arrays, ranks=ranks)
-    spread = spread_test(arrays, center="median")
+    groups = moments if moments is not None else arrays
+    anova = one_way_anova(groups)
+    welch = welch_anova(groups)
+    kw = kruskal_wallis(arrays, ranks=shared.ranks, runs=shared.runs)
+    if spread_moments is None:
+        spread = spread_test(arrays, center="median")
+    else:
+        spread = brown_forsythe_from_stats(*zip(*spread_moments, strict=True))
     rows = [
         {
             "test": TEST_ANOVA,
@@ -353,13 +381,18 @@ def _pair_record(
     summary_mode: bool,
     dominance: tuple[np.ndarray, np.ndarray] | None = None,
     rest=None,
+    moments: tuple[Sample, Sample] | None = None,
 ) -> dict:
+    """One pair's record. Welch's t, Hedges' g, TOST and the detectable difference use
+    ``moments`` (exact on every engine; the samples themselves when not given); the rank
+    statistics and the permutation test use the values of ``sa`` and ``sb``."""
     conf = settings.confidence
     reasons: dict[str, str] = {}
-    wt = welch_t(sa, sb, conf)
+    ma, mb = moments if moments is not None else (sa, sb)
+    wt = welch_t(ma, mb, conf)
     dom = dominance if dominance is not None else dominance_counts(sa, sb)
     mw = mann_whitney_u(sa, sb, tie_term=tie, dominance=dom)
-    g = hedges_g(sa, sb, conf)
+    g = hedges_g(ma, mb, conf)
     if summary_mode:
         # Against all other rows pooled: the interval searches are skipped to keep the cost
         # linear in the number of groups; the point estimate of Cliff's delta comes from U.
@@ -385,12 +418,12 @@ def _pair_record(
             reasons["cliffs_delta_ci"] = cd.reason
         if hl.reason:
             reasons["hl_ci"] = hl.reason
-    detect = detectable_difference(sa, sb, alpha=settings.alpha, power=0.8)
+    detect = detectable_difference(ma, mb, alpha=settings.alpha, power=0.8)
     rec: dict = {
         "a": a,
         "b": b,
-        "n_a": sa.n,
-        "n_b": sb.n,
+        "n_a": ma.n,
+        "n_b": mb.n,
         "welch_t": _num(wt.statistic),
         "welch_df": _num(wt.df),
         "welch_p": _num(wt.pvalue),
@@ -417,7 +450,7 @@ def _pair_record(
     if g.reason:
         reasons["hedges_g"] = g.reason
     if margin is not None:
-        eq = tost_welch(sa, sb, margin, alpha=settings.alpha)
+        eq = tost_welch(ma, mb, margin, alpha=settings.alpha)
         rec["tost_p"] = _num(eq.pvalue)
     else:
         reasons["equivalent"] = "no equivalence margin is set for this measure"
@@ -505,15 +538,44 @@ def _measure_entry(
     rng: np.random.Generator,
     perm_seed: int | None,
     balance: dict | None = None,
+    pieces=None,
+    summaries: dict | None = None,
 ) -> dict:
+    """Return one measure's comparison entry.
+
+    ``pieces`` (streamed data only) are the measure's exact summaries; then group rows and
+    every moment-based statistic use all rows, and the rank statistics the bounded sample
+    held in ``table`` (listed under ``from_sample``). ``summaries`` maps (measure, group) to
+    the summaries section's row, whose numbers the group rows then repeat."""
     spec = table.spec
     groups = list(table.groups)
     arrays = table.by_group(measure)
     excluded: list[dict] = []
     keep: list[int] = []
     samples_all = [Sample.of(v) for v in arrays]
-    sizes = [float(np.max(np.abs(v))) for v in arrays if v.size]
-    biggest = max(sizes, default=0.0)
+    exact = getattr(table, "exact", None)
+    if exact is None:
+        moments_all = samples_all
+        lows = [float(s.sorted[0]) if s.n else None for s in samples_all]
+        biggest = max((float(np.max(np.abs(v))) for v in arrays if v.size), default=0.0)
+    else:
+        moments_all = [moment_sample(*m) for m in exact.group_moments(measure)]
+        every = exact.moments[measure]
+        lows = [float(v) if n else None for n, v in zip(every.n, every.low, strict=True)]
+        seen = every.n > 0
+        biggest = float(
+            np.max(np.abs(np.concatenate([every.low[seen], every.high[seen]])), initial=0.0)
+        )
+
+    def rows_of(index: list[int]) -> list[dict]:
+        names = [groups[i] for i in index]
+        if summaries is not None:
+            # The summaries section's own numbers: one summary core for every engine.
+            return [_group_row(summaries[(measure, name)]) for name in names]
+        if pieces is None:
+            return _group_rows(names, [samples_all[i] for i in index])
+        return _summary_group_rows(names, [pieces.summaries[i] for i in index])
+
     if biggest > SCALE_LIMIT or 0 < biggest < 1 / SCALE_LIMIT:
         # Squares of such values overflow or vanish in double precision, so variances and
         # every test built on them would be meaningless; say so rather than print nonsense.
@@ -522,10 +584,10 @@ def _measure_entry(
             f"(largest magnitude {biggest:.3g}) for sums of squares in double precision; "
             "express the measure in other units to compare groups"
         )
-        entry = _empty_entry(measure, reason, [], _group_rows(groups, samples_all))
+        entry = _empty_entry(measure, reason, [], rows_of(list(range(len(groups)))))
         entry["findings"] = findings_mod.measure_findings(entry, settings)
         return entry
-    for i, s in enumerate(samples_all):
+    for i, s in enumerate(moments_all):
         if s.n < 2:
             excluded.append(
                 {"group": groups[i], "n": s.n, "reason": f"fewer than 2 values (n = {s.n})"}
@@ -535,15 +597,16 @@ def _measure_entry(
                 {
                     "group": groups[i],
                     "n": s.n,
-                    "reason": f"no variation: all {s.n} values are {s.sorted[0]:g}",
-                    "value": _num(s.sorted[0]),
+                    "reason": f"no variation: all {s.n} values are {lows[i]:g}",
+                    "value": _num(lows[i]),
                 }
             )
         else:
             keep.append(i)
     names = [groups[i] for i in keep]
     samples = [samples_all[i] for i in keep]
-    group_rows = _group_rows(names, samples)
+    moments = [moments_all[i] for i in keep]
+    group_rows = rows_of(keep)
     if len(keep) < 2:
         reason = (
             "fewer than two groups have at least 2 values with some variation, so groups "
@@ -553,12 +616,23 @@ def _measure_entry(
         entry["findings"] = findings_mod.measure_findings(entry, settings)
         return entry
 
-    # Mid-ranks within the pooled sample, once per measure (Kruskal–Wallis reuses them).
-    pooled = np.concatenate([s.sorted for s in samples])
-    all_ranks = stats.rankdata(pooled)
-    bounds = np.cumsum([0] + [s.n for s in samples])
-    ranks = [all_ranks[bounds[i] : bounds[i + 1]] for i in range(len(samples))]
-    omnibus, spread_row = _omnibus(samples, ranks)
+    # One pooled sort per measure gives the mid-ranks (Kruskal–Wallis reuses them), and every
+    # pair's dominance counts and tie term as lookups (Mann–Whitney, Cliff's delta, the shift).
+    shared = SharedRanks.of(samples)
+    spread_moments = anova_moments = None
+    if pieces is not None and pieces.spread is not None:
+        dev = pieces.spread
+        spread_moments = [
+            (int(dev.n[i]), float(dev.means[i]), float(dev.m2[i]) / (int(dev.n[i]) - 1))
+            for i in keep
+        ]
+    if exact is not None:
+        # Means relative to the column's pivot (as merged), so a large offset costs no digits.
+        every = exact.moments[measure]
+        anova_moments = [
+            GroupMoments(int(every.n[i]), float(every.mean[i]), float(every.m2[i])) for i in keep
+        ]
+    omnibus, spread_row = _omnibus(samples, shared, anova_moments, spread_moments)
     lead, lead_reason, lead_basis = _choose_lead(
         group_rows, spread_row, residual_skew_check(samples), settings.alpha
     )
@@ -566,7 +640,6 @@ def _measure_entry(
 
     margin = spec.equivalence_margin.get(measure)
     reference = spec.reference
-    ties = _TieTable(samples)
     k = len(samples)
     perm = None
     if spec.permutations > 0 and perm_seed is not None:
@@ -610,11 +683,11 @@ def _measure_entry(
         _, tie_counts = np.unique(everything, return_counts=True)
         tie_counts = tie_counts[tie_counts > 1].astype(float)
         tie_all = float(np.sum(tie_counts**3 - tie_counts))
-        ns = np.array([smp.n for smp in samples], dtype=float)
-        means = np.array([smp.mean for smp in samples], dtype=float)
-        ss = np.array([smp.variance * (smp.n - 1) if smp.n > 1 else 0.0 for smp in samples])
+        rank_totals = _totals(samples)
+        moment_totals = rank_totals if moments is samples else _totals(moments)
         for i in range(k):
-            rest_s = _rest_sample(i, ns, means, ss)
+            rest_s = _rest_sample(i, *rank_totals)
+            rest_m = rest_s if moments is samples else _rest_sample(i, *moment_totals)
             own = samples[i].sorted
             dom = (
                 np.searchsorted(everything, own, side="left")
@@ -639,6 +712,7 @@ def _measure_entry(
                     rest=lambda i=i: Sample.of(
                         np.concatenate([samples[j].sorted for j in range(k) if j != i])
                     ),
+                    moments=(moments[i], rest_m),
                 )
             )
     else:
@@ -649,22 +723,24 @@ def _measure_entry(
                     names[j],
                     samples[i],
                     samples[j],
-                    ties.term(i, j),
+                    shared.tie_term(i, j),
                     settings,
                     margin,
                     rank_lead,
                     rng,
                     perm,
                     False,
+                    dominance=shared.dominance(i, j),
+                    moments=(moments[i], moments[j]),
                 )
             )
 
     # Family tests that control the error rate themselves, beside the adjusted lead test.
     family_p: dict[tuple[int, int], dict[str, float | None]] = {}
     if mode == "all pairs":
-        for fp in tukey_hsd(samples):
+        for fp in tukey_hsd(moments):
             family_p.setdefault((fp.a, fp.b), {})["tukey_p"] = _num(fp.pvalue)
-        for fp in games_howell(samples):
+        for fp in games_howell(moments):
             family_p.setdefault((fp.a, fp.b), {})["games_howell_p"] = _num(fp.pvalue)
     dunnett_reason = None
     if mode == "reference":
@@ -767,7 +843,47 @@ def _measure_entry(
     if balance is not None:
         entry["x_balance"] = balance  # the findings warn when the groups differ in x
     entry["findings"] = findings_mod.measure_findings(entry, settings)
+    if exact is not None:
+        _mark_sampled(entry, rank_lead)
     return entry
+
+
+# What the bounded row sample feeds on streamed data (everything else, Brown–Forsythe and so
+# the lead test included, uses every row): the rank statistics, Dunnett's test (from the
+# values), the permutation test and what is decided from them.
+SAMPLED_PAIR_KEYS = (
+    "mw_u", "mw_method", "mw_p", "mw_p_adjusted", "hl_shift", "hl_ci_low", "hl_ci_high",
+    "cliffs_delta", "cliffs_delta_ci_low", "cliffs_delta_ci_high", "dunnett_p",
+    "permutation_p", "permutation_p_adjusted", "disagree", "null_reasons",
+)  # fmt: skip
+# ...and, when a rank test leads, the lead columns of each pair.
+SAMPLED_LEAD_KEYS = (
+    "statistic", "df", "p", "p_adjusted", "estimate", "ci_low", "ci_high", "effect",
+    "effect_ci_low", "effect_ci_high", "effect_label", "significant", "conclusion",
+    "conclusion_reason",
+)  # fmt: skip
+
+
+def _mark_sampled(entry: dict, rank_lead: bool) -> None:
+    """List, in ``from_sample`` of each dict, the keys whose values came from the sample."""
+    entry["from_sample"] = ["findings"] + (["letters"] if rank_lead else [])
+    if entry.get("lead_basis"):
+        # The residual skew check reads the values (pooled residuals), so it uses the sample.
+        entry["lead_basis"]["from_sample"] = ["residual_skewness", "skew_test_p", "skewed"]
+    for row in entry["omnibus"]:
+        if row["test"] == TEST_KW:
+            row["from_sample"] = sorted(k for k in row if k != "test")
+    keys = sorted(SAMPLED_PAIR_KEYS + (SAMPLED_LEAD_KEYS if rank_lead else ()))
+    for rec in entry["pairs"]:
+        rec["from_sample"] = keys
+
+
+def _totals(samples: Sequence[Sample]) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Return the sizes, means and sums of squared deviations of the groups, as arrays."""
+    ns = np.array([smp.n for smp in samples], dtype=float)
+    means = np.array([smp.mean for smp in samples], dtype=float)
+    ss = np.array([smp.variance * (smp.n - 1) if smp.n > 1 else 0.0 for smp in samples])
+    return ns, means, ss
 
 
 def _rest_sample(i: int, ns: np.ndarray, means: np.ndarray, ss: np.ndarray) -> Sample:
@@ -826,11 +942,17 @@ def _sensitivity_disagreement(r: dict, rank_lead: bool, mode: str, alpha: float)
 def compute(table, settings, rng: np.random.Generator, partial: dict | None = None) -> dict:
     """Return ``{"comparisons": [...]}``: one entry per measure, in the manifest's order.
 
-    ``partial`` (results already computed for this dataset) is accepted for the section
-    contract; this section computes the few summaries it needs itself (skewness, SDs) so it
-    does not depend on another section's shape.
+    ``partial`` (results already computed for this dataset): when it holds the summaries
+    section's rows, the group rows (n, mean, SD, median, extremes, skewness) repeat them, so
+    a number is computed once; without them this section computes its own.
     """
-    del partial
+    summaries = None
+    if partial and partial.get("summaries"):
+        summaries = {
+            (row["measure"], row["group"]): row
+            for row in partial["summaries"]
+            if row["group"] is not None
+        }
     spec = table.spec
     perm_seed = int(rng.integers(0, 2**31 - 1)) if spec.permutations > 0 else None
     # One child generator per measure: results do not depend on the order measures are run,
@@ -838,9 +960,15 @@ def compute(table, settings, rng: np.random.Generator, partial: dict | None = No
     children = rng.spawn(len(spec.measures))
     jobs = list(zip(spec.measures, children, strict=True))
     balance = _x_balance(table, settings)
+    exact = getattr(table, "exact", None)
+    # Streamed data: the exact summaries (the summaries section asked for the same ones, so
+    # this reads no more rows), fetched here before any thread starts.
+    pieces = exact.measures(spec.measures, settings.confidence) if exact is not None else {}
 
     def entry_for(job) -> dict:
-        return _measure_entry(table, job[0], settings, job[1], perm_seed, balance)
+        return _measure_entry(
+            table, job[0], settings, job[1], perm_seed, balance, pieces.get(job[0]), summaries
+        )
 
     if table.n_rows >= PARALLEL_ROWS and len(jobs) > 1:
         from concurrent.futures import ThreadPoolExecutor
@@ -876,6 +1004,10 @@ def _x_balance(table, settings) -> dict | None:
         return None
     kw = kruskal_wallis([a for _, a in usable])
     means = {g: float(np.mean(a)) for g, a in usable}
+    exact = getattr(table, "exact", None)
+    if exact is not None and x in exact.moments:
+        every = dict(zip(table.groups, exact.group_moments(x), strict=True))
+        means = {g: every[g][1] for g, _ in usable}
     low, high = min(means, key=means.get), max(means, key=means.get)
     return {
         "x": x,
@@ -886,6 +1018,7 @@ def _x_balance(table, settings) -> dict | None:
         "differs": bool(kw.pvalue is not None and kw.pvalue < settings.alpha),
         "lowest": {"group": low, "mean": means[low]},
         "highest": {"group": high, "mean": means[high]},
+        **({"from_sample": ["df", "differs", "p", "statistic"]} if exact is not None else {}),
     }
 
 
@@ -903,7 +1036,7 @@ def tables(dataset: dict, settings) -> list[DataTable]:
     """Return the omnibus, pairs, letters and not-comparable tables (ids cmp-{mi}-...)."""
     out: list[DataTable] = []
     for mi, entry in enumerate(dataset.get("comparisons", [])):
-        out.extend(measure_tables(entry, mi))
+        out.extend(measure_tables(entry, mi, dataset))
     return out
 
 
@@ -955,8 +1088,10 @@ def _cell(value):
     return value
 
 
-def measure_tables(entry: dict, mi: int) -> list[DataTable]:
-    """Return the tables of one measure's comparison entry."""
+def measure_tables(entry: dict, mi: int, dataset: dict | None = None) -> list[DataTable]:
+    """Return the tables of one measure's comparison entry (``dataset`` says whether some
+    numbers came from the row sample)."""
+    dataset = dataset or {}
     measure = entry["measure"]
     out = []
     if entry.get("omnibus"):
@@ -971,7 +1106,8 @@ def measure_tables(entry: dict, mi: int) -> list[DataTable]:
                 columns=OMNIBUS_COLUMNS,
                 rows=tuple(rows),
                 caption="The lead test is named above; the others are a sensitivity check. "
-                "Brown–Forsythe tests equal spread, not equal centres.",
+                "Brown–Forsythe tests equal spread, not equal centres."
+                + sampled_caption(dataset, "the Kruskal–Wallis test"),
             )
         )
     if entry.get("pairs"):
@@ -986,7 +1122,11 @@ def measure_tables(entry: dict, mi: int) -> list[DataTable]:
                 ),
                 caption=f"Family: {family.get('description', '')}; adjusted by "
                 f"{family.get('adjust_name', '')}. Tukey, Games–Howell and Dunnett p-values "
-                "control the family-wise error themselves.",
+                "control the family-wise error themselves."
+                + sampled_caption(
+                    dataset,
+                    "the Mann–Whitney, Hodges–Lehmann, Cliff's delta, Dunnett and permutation results",
+                ),
             )
         )
     if entry.get("letters"):

@@ -11,11 +11,11 @@ import math
 
 import numpy as np
 
-from ..stats.correlation import correlation_tables
-from ..stats.curvature import RULE, curvature_check, straight_line
+from ..stats.correlation import CorrelationTable, correlation_tables, pearson_from_comoments
+from ..stats.curvature import RULE, curvature_check, straight_line, straight_line_from_comoments
 from ..stats.loess import loess
 from ..stats.multiplicity import METHOD_NAMES, adjust_pvalues
-from . import Chart, DataTable
+from . import PARALLEL_ROWS, Chart, DataTable, sampled_caption
 
 SCATTER_LIMIT = 1_500  # points shipped per scatter chart (keeps a 1M-row site under 3 MB with room)
 SCATTER_BUDGET = 16_000  # points shipped over all scatter charts of a page (wide tables)
@@ -64,12 +64,20 @@ def _scopes(table) -> tuple[np.ndarray, np.ndarray]:
     return order, bounds
 
 
+def group_sizes(table) -> np.ndarray:
+    """Return the rows per group: of every row on streamed data, not of the sample."""
+    exact = getattr(table, "exact", None)
+    if exact is not None:
+        return exact.group_rows()
+    return np.bincount(table.codes, minlength=len(table.groups))
+
+
 def chosen_groups(table) -> list[int]:
     """Return the indices of the groups analysed one by one: all, or the largest GROUP_LIMIT."""
     n_groups = len(table.groups)
     if n_groups <= GROUP_LIMIT:
         return list(range(n_groups))
-    sizes = np.bincount(table.codes, minlength=n_groups)
+    sizes = group_sizes(table)
     largest = np.argsort(-sizes, kind="stable")[:GROUP_LIMIT]
     return sorted(int(g) for g in largest)
 
@@ -104,6 +112,9 @@ def _correlations(table, names, settings, rng, chosen: list[int]) -> tuple[list[
             level=settings.confidence,
             rng=rng,
         )
+    exact = getattr(table, "exact", None)
+    if exact is not None:
+        results = [_exact_pearson(exact, r, names, chosen, settings.confidence) for r in results]
     out: list[dict] = []
     for result in results:
         if result.group is not None and result.group >= len(chosen):
@@ -148,6 +159,7 @@ def _correlations(table, names, settings, rng, chosen: list[int]) -> tuple[list[
                     "p": _num(c.p),
                     "p_adjusted": _num(p_adj),
                     "note": note,
+                    **({"from_sample": RANK_KEYS} if exact and c.method != "pearson" else {}),
                 }
             )
     pairs = len(names) * (len(names) - 1) // 2
@@ -164,6 +176,46 @@ def _correlations(table, names, settings, rng, chosen: list[int]) -> tuple[list[
         ),
     }
     return out, family
+
+
+# On streamed data Pearson's r comes from exact co-moments; Spearman and Kendall come from
+# the bounded sample, and their rows list these keys under ``from_sample``.
+RANK_KEYS = ["ci_low", "ci_high", "n", "note", "p", "p_adjusted", "r"]
+
+
+def _exact_pearson(exact, result: CorrelationTable, names, chosen, level) -> CorrelationTable:
+    """Return ``result`` with Pearson's r from the exact co-moments of every row (streamed
+    data); other methods are returned as they are."""
+    if result.method != "pearson":
+        return result
+    scope = -1 if result.group is None or result.group >= len(chosen) else chosen[result.group]
+    pairs = []
+    for i, j, c in result.pairs:
+        a, b = names[i], names[j]
+        if a not in exact.moments or b not in exact.moments:
+            pairs.append((i, j, c))
+            continue
+        co = exact.pair_moments(a, b)
+        flat = (bool(exact.flat(a)[scope]), bool(exact.flat(b)[scope]))
+        exact_c = pearson_from_comoments(
+            int(co.n[scope]), co.m2a[scope], co.m2b[scope], co.c[scope], level, flat
+        )
+        pairs.append((i, j, exact_c))
+    return CorrelationTable(result.method, result.group, tuple(pairs))
+
+
+def _exact_line(exact, scope: int, a: str, b: str, level: float):
+    """Return the straight line of b on a in one scope (a group index, -1 for all rows) from
+    the exact co-moments of every row, or None when a column has none."""
+    if a not in exact.moments or b not in exact.moments:
+        return None
+    co = exact.pair_moments(a, b)
+    mean_a = exact.moments[a].pivot + co.mean_a[scope]
+    mean_b = exact.moments[b].pivot + co.mean_b[scope]
+    return straight_line_from_comoments(
+        int(co.n[scope]), mean_a, mean_b, co.m2a[scope], co.m2b[scope], co.c[scope], level,
+        x_flat=bool(exact.flat(a)[scope]),
+    )  # fmt: skip
 
 
 def _reversals(correlations: list[dict], names: list[str], n_groups: int) -> list[dict]:
@@ -232,8 +284,13 @@ def _share(r2: float) -> str:
     return "under 1%" if share < 0.5 else f"{share:.0f}%"
 
 
-def _relationship(group, a, b, xv, yv, fit, level, r=None) -> tuple[dict, dict]:
-    line = straight_line(xv, yv, level)
+def _relationship(
+    group, a, b, xv, yv, fit, level, r=None, line=None, exact_line=None
+) -> tuple[dict, dict]:
+    """Return the curvature entry (line and smooth on the rows given, or ``line`` when
+    already fitted) and the line entry (from ``exact_line`` when given: every row of
+    streamed data)."""
+    line = straight_line(xv, yv, level) if line is None else line
     if fit.reason or line.reason:
         check = curvature_check(None, None, line.n, None)
         reason = line.reason or fit.reason
@@ -252,6 +309,9 @@ def _relationship(group, a, b, xv, yv, fit, level, r=None) -> tuple[dict, dict]:
         "curved": bool(check.curved),
         "note": reason if reason else _curve_note(a, b, line.r2, check, r),
     }
+    if exact_line is not None:
+        line = exact_line
+        entry["from_sample"] = sorted(set(entry) - {"group", "a", "b"})
     line_entry = {
         "group": group,
         "x": a,
@@ -335,7 +395,7 @@ def compute(table, settings, rng: np.random.Generator, partial: dict | None = No
     names = list(dict.fromkeys([*spec.measures, *([x_name] if x_name else [])]))
     chosen = chosen_groups(table)
     groups = [table.groups[g] for g in chosen]
-    sizes = np.bincount(table.codes, minlength=len(table.groups))
+    sizes = group_sizes(table)
     drawn = sorted(sorted(chosen, key=lambda g: -sizes[g])[:DRAWN_LIMIT])
     summarised = None
     if len(chosen) < len(table.groups):
@@ -359,7 +419,47 @@ def compute(table, settings, rng: np.random.Generator, partial: dict | None = No
             f"With {len(names)} columns, within-group correlations use Pearson and Spearman only "
             "(Kendall for all rows)."
         )
-    correlations, family = _correlations(table, names, settings, rng, drawn if wide else chosen)
+    order, bounds = _scopes(table)
+    level = settings.confidence
+    span = spec.smooth_span
+
+    def smooth_scopes() -> list[list[tuple]]:
+        """Per measure: (label, smooth, straight line) of each scope (all rows, then each
+        drawn group); the scopes' rows are let go as soon as they are fitted."""
+        if not x_name:
+            return []
+        x_all = table.values(x_name)
+        out = []
+        for measure in measures:
+            y_all = table.values(measure)
+            scopes = [(None, x_all, y_all)]
+            xs, ys = x_all[order], y_all[order]
+            for g in drawn:
+                part = slice(bounds[g], bounds[g + 1])
+                scopes.append((table.groups[g], xs[part], ys[part]))
+            fitted = []
+            for label, xv, yv in scopes:
+                keep = ~(np.isnan(xv) | np.isnan(yv))
+                xv, yv = xv[keep], yv[keep]
+                fit = loess(xv, yv, span, spec.smooth_degree, spec.smooth_robust, level)
+                fitted.append((label, fit, straight_line(xv, yv, level)))
+            out.append(fitted)
+        return out
+
+    # The smooths draw no random numbers, so on large tables they are fitted on a second
+    # thread while the correlations (which do) run here; the results are the same either way.
+    if table.n_rows >= PARALLEL_ROWS and x_name:
+        from concurrent.futures import ThreadPoolExecutor
+
+        with ThreadPoolExecutor(max_workers=1) as pool:
+            pending = pool.submit(smooth_scopes)
+            correlations, family = _correlations(
+                table, names, settings, rng, drawn if wide else chosen
+            )
+            smoothed = pending.result()
+    else:
+        correlations, family = _correlations(table, names, settings, rng, drawn if wide else chosen)
+        smoothed = smooth_scopes()
     pearson_r = {}
     for c in correlations:
         if c["method"] == "pearson":
@@ -369,25 +469,24 @@ def compute(table, settings, rng: np.random.Generator, partial: dict | None = No
     relationships: list[dict] = []
     linear_fits: list[dict] = []
     scatter: list[dict] = []
-    order, bounds = _scopes(table)
-    level = settings.confidence
-    span = spec.smooth_span
+    exact = getattr(table, "exact", None)
     if x_name:
         x_all = table.values(x_name)
-        for measure in measures:
+        for measure, fitted in zip(measures, smoothed, strict=True):
             y_all = table.values(measure)
-            scopes = [(None, x_all, y_all)]
-            xs, ys = x_all[order], y_all[order]
-            for g in drawn:
-                part = slice(bounds[g], bounds[g + 1])
-                scopes.append((table.groups[g], xs[part], ys[part]))
-            for label, xv, yv in scopes:
-                keep = ~(np.isnan(xv) | np.isnan(yv))
-                xv, yv = xv[keep], yv[keep]
-                fit = loess(xv, yv, span, spec.smooth_degree, spec.smooth_robust, level)
-                smooths.append(_smooth_entry(label, x_name, measure, fit))
+            for label, fit, line in fitted:
+                smooth = _smooth_entry(label, x_name, measure, fit)
+                if exact is not None:
+                    smooth["from_sample"] = sorted(set(smooth) - {"group", "x", "y", "method"})
+                smooths.append(smooth)
                 r = pearson_r.get((label, x_name, measure))
-                rel, line = _relationship(label, x_name, measure, xv, yv, fit, level, r)
+                exact_line = None
+                if exact is not None:
+                    scope = -1 if label is None else table.groups.index(label)
+                    exact_line = _exact_line(exact, scope, x_name, measure, level)
+                rel, line = _relationship(
+                    label, x_name, measure, None, None, fit, level, r, line, exact_line
+                )
                 relationships.append(rel)
                 linear_fits.append(line)
             complete = ~(np.isnan(x_all) | np.isnan(y_all))
@@ -406,6 +505,11 @@ def compute(table, settings, rng: np.random.Generator, partial: dict | None = No
                     "n_total": int(complete.size),
                     "n_shown": int(picked.size),
                     "sampled": bool(picked.size < complete.size),
+                    **(
+                        {"from_sample": ["n_shown", "n_total", "points", "sampled"]}
+                        if exact is not None
+                        else {}
+                    ),
                     "points": [
                         {"group": table.groups[c], "x": _short(a), "y": _short(b)}
                         for c, a, b in zip(
@@ -432,6 +536,8 @@ def compute(table, settings, rng: np.random.Generator, partial: dict | None = No
                 sampled = f"checked on a random sample of {rows.size:,} of {total:,} rows"
                 rel["note"] = f"{rel['note']} ({sampled})" if rel["note"] else sampled
                 rel["sample"] = sampled
+            if exact is not None:
+                rel["from_sample"] = sorted(set(rel) - {"group", "a", "b"})
             relationships.append(rel)
     return {
         "correlations": correlations,
@@ -577,6 +683,7 @@ def tables(dataset: dict, settings) -> list[DataTable]:
                     f"{round(100 * settings.confidence)}% intervals by Fisher's z (Spearman with "
                     "the Bonett–Wright standard error, Kendall with that of Fieller, Hartley & Pearson); "
                     + family["description"]
+                    + sampled_caption(dataset, "the Spearman and Kendall coefficients")
                 ),
             )
         )
@@ -607,7 +714,10 @@ def tables(dataset: dict, settings) -> list[DataTable]:
                     }
                     for r in dataset["relationships"]
                 ),
-                caption="The rule: " + info["curve_rule"] + ". Each curve is described above.",
+                caption="The rule: "
+                + info["curve_rule"]
+                + ". Each curve is described above."
+                + sampled_caption(dataset, "the smooths and this check"),
             )
         )
     curved = {(r["group"], r["a"], r["b"]) for r in dataset["relationships"] if r["curved"]}

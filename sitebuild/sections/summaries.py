@@ -13,7 +13,7 @@ MAX_OUTLIER_POINTS = 20  # per side per group: the most extreme values, enough t
 
 SUMMARY_FIELDS = (
     "n", "missing", "mean", "sd", "se", "ci_low", "ci_high", "median", "median_ci_low",
-    "median_ci_high", "q1", "q3", "iqr", "min", "max", "skewness", "excess_kurtosis",
+    "median_ci_high", "q1", "q3", "iqr", "min", "max", "midrange", "skewness", "excess_kurtosis",
     "share_within_1sd", "share_within_2sd", "outliers", "normality_test", "normality_p",
 )  # fmt: skip
 
@@ -35,7 +35,9 @@ def _sorted_by_group(values: np.ndarray, codes: np.ndarray, n_groups: int):
     """
     keep = ~np.isnan(values)
     kept, kept_codes = values[keep], codes[keep]
-    order = np.argsort(kept_codes, kind="stable")
+    # Small codes as int16 sort by radix (linear); a stable sort gives the same order.
+    narrow = kept_codes.astype(np.int16) if n_groups < 32_000 else kept_codes
+    order = np.argsort(narrow, kind="stable")
     ordered = kept[order]
     bounds = np.searchsorted(kept_codes[order], np.arange(n_groups + 1))
     for index in range(n_groups):
@@ -72,14 +74,34 @@ def computed_from(table: Table) -> dict:
         "sample_rows": exact.sample_rows,
         "sample_per_group": exact.sample_per_group,
         "sample_reason": "the data was read in batches and not kept in memory",
+        "sampled_statistics": list(SAMPLED_STATISTICS),
         "note": (
-            f"Summaries, histograms and box statistics use all {table.report.rows_used:,} rows, "
-            f"read in batches ({exact.passes} passes; quartiles, medians and their intervals "
-            "found exactly by bucketed counting). Scatter points, smooths, rank tests and "
-            f"pairwise tests use a seeded sample of {exact.sample_rows:,} rows (at most "
-            f"{exact.sample_per_group:,} per group)."
+            "Summaries, histograms, box statistics, Welch's t, both ANOVAs, Brown–Forsythe (so "
+            "the choice of lead test), Tukey, Games–Howell, Hedges' g, equivalence tests, "
+            "Pearson's r and straight-line fits use "
+            f"all {table.report.rows_used:,} rows, read in batches ({exact.passes} passes; "
+            "quartiles, medians and their intervals found exactly by bucketed counting). "
+            + ", ".join(SAMPLED_STATISTICS[:-1])
+            + f" and {SAMPLED_STATISTICS[-1]} use a seeded sample of {exact.sample_rows:,} rows "
+            f"(at most {exact.sample_per_group:,} per group)."
         ),
     }
+
+
+# What the bounded row sample feeds on streamed data: statistics that need the values
+# themselves (ranks, medians of deviations, resampling) and what is drawn from rows. Each
+# result row built from them lists its keys under ``from_sample``.
+SAMPLED_STATISTICS = (
+    "Kruskal–Wallis",
+    "Mann–Whitney U",
+    "Hodges–Lehmann shifts",
+    "Cliff's delta",
+    "Dunnett's test",
+    "permutation tests",
+    "Spearman and Kendall correlations",
+    "smooths and the curvature check",
+    "scatter points",
+)
 
 
 def compute(table: Table, settings: SiteSettings, rng, partial: dict) -> dict:

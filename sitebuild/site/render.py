@@ -258,7 +258,7 @@ def data_time(manifest: Manifest) -> str | None:
 
 def page_parts(ds: dict, settings) -> tuple[dict, dict]:
     """Return (charts by id, tables by id) for one dataset from every section."""
-    from ..pipeline import section_modules
+    from ..sections import section_modules
 
     charts, tables = {}, {}
     for module in section_modules():

@@ -517,31 +517,80 @@ def correlation_tables(
         key = np.asarray(codes).astype(np.int16 if n_groups < 32_000 else np.int64)
         row_order = np.argsort(key, kind="stable")
         key = key[row_order]
-        data = data[row_order]
         bounds = np.searchsorted(key, np.arange(n_groups + 1))
-    data = np.asfortranarray(data)
-    ranks_all = ranks_group = None  # only Spearman uses ranks
-    if "spearman" in methods:
-        ranks_all = np.full((n, k), np.nan, order="F")
-        ranks_group = np.full((n, k), np.nan, order="F") if grouped else ranks_all
+        # Gathered column by column straight into column-major storage: one copy of the data,
+        # not a row-major copy and then a column-major one.
+        ordered = np.empty((n, k), order="F")
         for j in range(k):
-            column = data[:, j]
-            missing = np.isnan(column)
-            whole = not missing.any()  # then skip the gathers and scatters by row number
-            rows = slice(None) if whole else np.flatnonzero(~missing)
-            values = column if whole else column[rows]
-            order = np.argsort(values)
-            ranks_all[rows, j] = _ranks_from_order(values, order)
-            if grouped:
-                # Within-group order from the overall one by a stable sort on the codes.
-                part = key if whole else key[rows]
-                by_group = order[np.argsort(part[order], kind="stable")]
-                ranks_group[rows, j] = _ranks_from_order(values, by_group, part)
+            np.take(data[:, j], row_order, out=ordered[:, j])
+        data = ordered
+    else:
+        data = np.asfortranarray(data)
+    ranks_all = None  # only Spearman uses ranks
+    if "spearman" in methods:
+        ranks_all = _column_ranks(data)
     out = [_scope_table(data, ranks_all, m, level, None, rng, kendall_limit) for m in methods]
+    del ranks_all  # within groups, ranks restart: each group's are made when it is reached
     if grouped:
         for g in range(n_groups):
             part = slice(bounds[g], bounds[g + 1])
+            ranks = _column_ranks(data[part]) if "spearman" in methods else None
             for m in methods:
-                ranks = None if ranks_group is None else ranks_group[part]
                 out.append(_scope_table(data[part], ranks, m, level, g, rng, kendall_limit))
     return out
+
+
+def _column_ranks(data: np.ndarray) -> np.ndarray:
+    """Return the average ranks of each column over its non-missing rows (NaN where missing)."""
+    n, k = data.shape
+    ranks = np.full((n, k), np.nan, order="F")
+    for j in range(k):
+        column = data[:, j]
+        missing = np.isnan(column)
+        whole = not missing.any()  # then skip the gathers and scatters by row number
+        rows = slice(None) if whole else np.flatnonzero(~missing)
+        values = column if whole else column[rows]
+        ranks[rows, j] = _ranks_from_order(values, np.argsort(values))
+    return ranks
+
+
+def pearson_from_comoments(
+    n: int,
+    sxx: float,
+    syy: float,
+    sxy: float,
+    level: float = 0.95,
+    flat: tuple[bool, bool] = (False, False),
+) -> Correlation:
+    """Return Pearson's r, its Fisher-z interval and t-test p from centred co-moments.
+
+    ``sxx``, ``syy``, ``sxy`` are Σ(x − x̄)², Σ(y − ȳ)², Σ(x − x̄)(y − ȳ) over the ``n``
+    complete pairs (exact when merged by Chan, Golub & LeVeque); ``flat`` says a column is
+    known to be constant (its minimum equals its maximum), which rounding in the sums can hide.
+
+    Notes
+    -----
+    r = sxy / (√sxx √syy); interval and p as in :func:`pearson`.
+
+    References
+    ----------
+    Fisher, R. A. (1921). Metron 1, 3-32.
+    Pébay, P. (2008). Formulas for robust, one-pass parallel computation of covariances and
+    arbitrary-order statistical moments. Sandia report SAND2008-6212.
+
+    Examples
+    --------
+    >>> round(pearson_from_comoments(5, 10.0, 6.0, 6.0).r, 4)
+    0.7746
+    """
+    n = int(n)
+    if n < MIN_PAIRS:
+        return _undefined("pearson", n, level, f"fewer than {MIN_PAIRS} complete pairs")
+    for variance, is_flat, name in ((sxx, flat[0], "x"), (syy, flat[1], "y")):
+        if is_flat or not variance > 0:
+            return _undefined("pearson", n, level, f"{name} has no variation")
+    r = float(sxy / (math.sqrt(sxx) * math.sqrt(syy)))
+    r = min(1.0, max(-1.0, r))
+    p = float(_t_pvalue(np.array(r), np.array(n)))
+    se = 1.0 / math.sqrt(n - 3) if n > 3 else 0.0
+    return _finish("pearson", r, n, level, p, se, "fisher-z")

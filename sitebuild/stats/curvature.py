@@ -89,11 +89,42 @@ def straight_line(x, y, level: float = 0.95) -> StraightLine:
         sxx = float(dx @ dx)
         syy = float(dy @ dy)
         sxy = float(dx @ dy)
+    return straight_line_from_comoments(n, xbar, ybar, sxx, syy, sxy, level)
+
+
+def straight_line_from_comoments(
+    n: int, mean_x: float, mean_y: float, sxx: float, syy: float, sxy: float,
+    level: float = 0.95, x_flat: bool = False,
+) -> StraightLine:  # fmt: skip
+    """Return the least-squares line of y on x from the n complete pairs' centred co-moments.
+
+    ``sxx``, ``syy``, ``sxy`` are Σ(x − x̄)², Σ(y − ȳ)², Σ(x − x̄)(y − ȳ): a streamed read
+    merges them exactly, so the line is the same as from the rows themselves.
+
+    Notes
+    -----
+    As :func:`straight_line`: slope = Sxy / Sxx, RSS = Syy − slope² Sxx.
+
+    References
+    ----------
+    Draper, N. R. & Smith, H. (1998). Applied Regression Analysis, 3rd ed., Wiley, ch. 1.
+
+    Examples
+    --------
+    >>> round(straight_line_from_comoments(4, 2.5, 5.125, 5.0, 23.6875, 10.75).slope, 3)
+    2.15
+    """
+    n = int(n)
+    empty = StraightLine(n, None, None, None, None, None, None, None, level)
+    if n < 3:
+        return replace(empty, reason="fewer than 3 complete pairs")
+    if x_flat or sxx == 0:
+        return replace(empty, reason="x has no variation")
     # Squares that underflow to zero or overflow to infinity leave no usable line.
     if not (0.0 < sxx < np.inf and np.isfinite(syy) and np.isfinite(sxy)):
         return replace(empty, reason="the values are too extreme to fit a line in double precision")
     slope = sxy / sxx
-    intercept = ybar - slope * xbar
+    intercept = mean_y - slope * mean_x
     rss = max(syy - slope * slope * sxx, 0.0)
     r2 = 1.0 - rss / syy if syy > 0 else None
     from scipy import stats

@@ -77,13 +77,27 @@ def _pivot(groups: Sequence[np.ndarray]) -> float:
     return 0.0
 
 
-def _moments(groups: Sequence[np.ndarray]) -> list[GroupMoments]:
+def _moments(groups: Sequence[np.ndarray] | Sequence[GroupMoments]) -> list[GroupMoments]:
     """Moments of each group; the means are relative to one common pivot.
 
     Every statistic built here depends only on differences of means and on centred sums of
     squares, both unchanged by a common shift, so the shifted means are used as they are.
-    The sums of squares come from the unshifted values.
+    The sums of squares come from the unshifted values. Moments given as such (streamed data,
+    :mod:`sitebuild.stats.from_moments`; their means may be relative to any common pivot)
+    are used as they are.
     """
+    if groups and all(isinstance(g, GroupMoments) for g in groups):
+        moments = list(groups)
+    else:
+        moments = _array_moments(groups)
+    if len(moments) < 2:
+        raise ValueError("need at least two groups")
+    if any(m.n < 1 for m in moments):
+        raise ValueError("every group needs at least one value")
+    return moments
+
+
+def _array_moments(groups: Sequence[np.ndarray]) -> list[GroupMoments]:
     pivot = _pivot(groups)
     moments = []
     for g in groups:
@@ -91,10 +105,6 @@ def _moments(groups: Sequence[np.ndarray]) -> list[GroupMoments]:
         own = group_moments(x)  # the spread from the values themselves: shifting could round
         # away differences far below the pivot's precision (values near 5e-324 beside 1.0)
         moments.append(GroupMoments(own.n, group_moments(x - pivot).mean, own.ss))
-    if len(moments) < 2:
-        raise ValueError("need at least two groups")
-    if any(m.n < 1 for m in moments):
-        raise ValueError("every group needs at least one value")
     return moments
 
 
@@ -252,12 +262,15 @@ class KruskalResult:
 
 
 def kruskal_wallis(
-    groups: Sequence[np.ndarray], ranks: Sequence[np.ndarray] | None = None
+    groups: Sequence[np.ndarray],
+    ranks: Sequence[np.ndarray] | None = None,
+    runs: np.ndarray | None = None,
 ) -> KruskalResult:
     """Return the tie-corrected Kruskal–Wallis H, its df, p-value and epsilon².
 
     ``ranks`` (optional) are the mid-ranks of each group's values within the pooled sample,
-    computed once by the caller and reused; otherwise they are computed here.
+    computed once by the caller and reused; otherwise they are computed here. ``runs``
+    (optional, with ``ranks``) are the sizes of the runs of equal values in the pooled sample.
 
     Notes
     -----
@@ -289,7 +302,10 @@ def kruskal_wallis(
         bounds = np.cumsum(np.concatenate([[0], ns])).astype(int)
         ranks = [all_ranks[bounds[i] : bounds[i + 1]] for i in range(k)]
     sums = np.array([float(np.sum(r)) for r in ranks])
-    _, counts = np.unique(pooled, return_counts=True)
+    if runs is None:
+        _, counts = np.unique(pooled, return_counts=True)
+    else:
+        counts = runs  # the caller's pooled sort already has the sizes of equal-value runs
     tie_term = float(np.sum(counts.astype(float) ** 3 - counts))
     c = 1.0 - tie_term / (float(n) ** 3 - n) if n > 1 else math.nan
     # Σ R_i²/n_i − N(N+1)²/4 written as Σ n_i (R̄_i − (N+1)/2)² keeps precision for large N.

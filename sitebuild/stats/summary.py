@@ -46,6 +46,32 @@ class Summary:
     normality_p: float | None
     reasons: dict[str, str] = field(default_factory=dict)
 
+    @property
+    def midrange(self) -> float | None:
+        """Return the point halfway between the smallest and largest value (None without values).
+
+        Derived from ``min`` and ``max``, which every engine fills exactly, so no engine needs
+        its own code for it.
+
+        Notes
+        -----
+        midrange = min/2 + max/2 (halved first, so extremes near the largest double do not
+        overflow).
+
+        References
+        ----------
+        Dixon, W. J. & Massey, F. J. (1969). Introduction to Statistical Analysis, 3rd ed.,
+        McGraw-Hill (the mid-range as a measure of location).
+
+        Examples
+        --------
+        >>> describe(np.array([1.0, 2.0, 9.0])).midrange
+        5.0
+        """
+        if self.min is None or self.max is None:
+            return None
+        return 0.5 * self.min + 0.5 * self.max
+
 
 def median_ci_ranks(n: int, level: float) -> tuple[int, int, float] | None:
     """Return 1-based ranks (l, u) and exact coverage of the order-statistic interval for the median.

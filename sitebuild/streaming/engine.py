@@ -20,9 +20,16 @@ What is exact and what is sampled
   wanted rank; passes: typically 3-4 over the data, at most 64 / bits-per-pass.
 - Groups with at most 5,000 values keep all their values and are summarised exactly as in
   memory (Shapiro–Wilk included).
-- Sampled: the Table handed to the other sections holds a seeded uniform sample of at most
-  ``SAMPLE_PER_GROUP`` rows per group (bottom-k keys), so rank tests, smooths, scatter points
-  and pairwise tests there use that sample; results say so.
+- Exact for the sections too: every moment-based comparison (Welch's t, both ANOVAs,
+  Tukey–Kramer, Games–Howell, Hedges' g, TOST, detectable difference), Brown–Forsythe (the
+  moments of |value - group median|, merged in the finishing pass), Pearson's r and the
+  straight-line fits, from :meth:`Streamed.group_moments`, :meth:`Streamed.pair_moments` and
+  :meth:`Streamed.measures` (see :mod:`sitebuild.stats.from_moments`).
+- Sampled: the Table handed to the sections holds a seeded uniform sample of at most
+  ``SAMPLE_PER_GROUP`` rows per group (bottom-k keys) for what needs the values themselves:
+  rank tests and rank correlations, Hodges–Lehmann, Cliff's delta, Dunnett, permutation
+  tests, smooths and scatter points. Each results object lists those keys under
+  ``from_sample``.
 """
 
 from __future__ import annotations
@@ -220,6 +227,7 @@ class ColumnPlan:
     fence_low: np.ndarray | None = None
     fence_high: np.ndarray | None = None
     edges: np.ndarray | None = None
+    median: np.ndarray | None = None  # per label: moments of |value - median| (Brown–Forsythe)
 
 
 @dataclass(frozen=True)
@@ -253,6 +261,7 @@ class ScanTask:
                 "bins": None
                 if plan.edges is None
                 else np.zeros((self.groups, plan.edges.size - 1), dtype=np.int64),
+                "spread": None if plan.median is None else Moments.empty(self.groups),
             }
         return state
 
@@ -297,6 +306,12 @@ class ScanTask:
             small = plan.collect_all[lab]
             if small.any():
                 acc["small"].append((lab[small], v[small]))
+        if plan.median is not None and lab.size:
+            # Absolute deviations from the group's exact median, merged like any moments:
+            # the Brown–Forsythe test is the one-way ANOVA of these.
+            deviations = np.abs(v - plan.median[lab])
+            piece = Moments.of(deviations, lab.astype(np.int32), self.groups)
+            acc["spread"] = acc["spread"].merge(piece)
         if plan.fence_low is not None:
             low = v < plan.fence_low[lab]
             high = v > plan.fence_high[lab]
@@ -389,6 +404,8 @@ class ScanTask:
             np.maximum(acc["whisker_high"], other["whisker_high"], out=acc["whisker_high"])
             if acc["bins"] is not None:
                 acc["bins"] += other["bins"]
+            if acc["spread"] is not None:
+                acc["spread"] = acc["spread"].merge(other["spread"])
         return a
 
 
@@ -549,6 +566,7 @@ class MeasurePieces:
     edges: np.ndarray
     counts: np.ndarray  # groups × bins
     outlier_points: list[list[float]]
+    spread: Moments | None = None  # per group: moments of |value - group median|
 
 
 @dataclass
@@ -571,8 +589,35 @@ class Streamed:
 
     def pearson(self, a: str, b: str) -> np.ndarray:
         """Return Pearson's r of columns a and b per group, from exact co-moments."""
-        key = (a, b) if (a, b) in self.comoments else (b, a)
-        return self.comoments[key].pearson()
+        return self.pair_moments(a, b).pearson()[:-1]
+
+    def pair_moments(self, a: str, b: str) -> CoMoments:
+        """Return the exact co-moments of columns a and b (in that role) per group, then all
+        rows as one more entry."""
+        if (a, b) in self.comoments:
+            return self.comoments[(a, b)].with_total()
+        return self.comoments[(b, a)].swapped().with_total()
+
+    def group_moments(self, name: str) -> list[tuple[int, float, float]]:
+        """Return (n, mean, variance) of column ``name`` per group in display order, exact
+        over every row (variance NaN below 2 values)."""
+        m = self.moments[name]
+        n = m.n.astype(np.int64)
+        with np.errstate(invalid="ignore", divide="ignore"):
+            variance = np.where(n > 1, m.m2 / np.maximum(n - 1, 1), np.nan)
+        return list(zip(n.tolist(), m.means.tolist(), variance.tolist(), strict=True))
+
+    def group_rows(self) -> np.ndarray:
+        """Return the rows of each group (display order), missing values included."""
+        name = next(iter(self.moments))
+        return self.moments[name].n + self.missing_by_group[name]
+
+    def flat(self, name: str) -> np.ndarray:
+        """Return per group, then all rows, whether column ``name`` holds one value only."""
+        m = self.moments[name]
+        low = np.append(m.low, m.low.min(initial=np.inf))
+        high = np.append(m.high, m.high.max(initial=-np.inf))
+        return low == high
 
     def measures(self, names, level: float) -> dict[str, MeasurePieces]:
         """Return the :class:`MeasurePieces` of each measure (passes over the data run once)."""
@@ -653,12 +698,14 @@ class Streamed:
             values_at[name] = at
             q1 = np.full(labels, np.nan)
             q3 = np.full(labels, np.nan)
+            median = np.full(labels, np.nan)
             for label in range(labels):
                 n = int(every.n[label])
                 if n == 0:
                     continue
                 ranks = at.get(label) or dict(enumerate(small.get(label, np.zeros(0)).tolist()))
                 q1[label], q3[label] = _type7(ranks, n, 0.25), _type7(ranks, n, 0.75)
+                median[label] = _type7(ranks, n, 0.5)
             iqr = q3 - q1
             n_all = int(every.n[G])
             if n_all == 0:
@@ -689,6 +736,7 @@ class Streamed:
                 fence_low=np.nan_to_num(q1 - 1.5 * iqr, nan=np.inf),
                 fence_high=np.nan_to_num(q3 + 1.5 * iqr, nan=-np.inf),
                 edges=edges,
+                median=median,
             )
         state = self.runner(self.source, ScanTask(self.label_code, G, finishing, False))
         self.passes += 1
@@ -724,6 +772,7 @@ class Streamed:
                 edges=finishing[name].edges,
                 counts=acc["bins"],
                 outlier_points=points,
+                spread=acc["spread"],
             )
         return out
 

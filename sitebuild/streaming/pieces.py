@@ -349,6 +349,24 @@ class CoMoments:
             c=x.c + y.c + da * db * w,
         )
 
+    def swapped(self) -> CoMoments:
+        """Return the co-moments with the two columns' roles exchanged."""
+        return CoMoments(self.n, self.mean_b, self.mean_a, self.m2b, self.m2a, self.c)
+
+    def with_total(self) -> CoMoments:
+        """Return these groups followed by one more: all groups pooled (pairwise merge order)."""
+        pieces = [self.take(np.array([g])) for g in range(self.n.shape[0])]
+        if not pieces:
+            return CoMoments.empty(1)
+        while len(pieces) > 1:
+            merged = [a.merge(b) for a, b in zip(pieces[::2], pieces[1::2], strict=False)]
+            if len(pieces) % 2:
+                merged.append(pieces[-1])
+            pieces = merged
+        return CoMoments(
+            *(np.concatenate([getattr(self, k), getattr(pieces[0], k)]) for k in COMOMENT_FIELDS)
+        )
+
     def pearson(self) -> np.ndarray:
         """Return Pearson's r per group (NaN where undefined)."""
         with np.errstate(invalid="ignore", divide="ignore"):
