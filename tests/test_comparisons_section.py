@@ -212,7 +212,7 @@ def test_many_groups_are_summarised_not_paired():
     _validate(result)
     charts = sec.charts(result, SiteSettings())
     forest = next(c for c in charts if c.id == "cmp-0-forest")
-    assert len(forest.spec["data"]["values"]) <= 60
+    assert len(forest.spec["datasets"]["pairs"]) <= 60
 
 
 def test_each_group_against_the_rest_matches_scipy_on_the_pooled_rest():
@@ -256,6 +256,9 @@ def test_charts_compile_and_use_only_safe_field_names(mixed):
     charts = sec.charts(mixed, SiteSettings())
     assert [c.id for c in charts] == ["cmp-0-forest", "cmp-0-pmatrix"]
     safe = {"label", "x", "low", "high", "status", "order", "row", "col", "value", "band", "text"}
+    # The forest's: pair members (for the page-wide highlight), adjusted p, sizes, drawn ends.
+    safe |= {"a", "b", "q", "n_a", "n_b", "few", "draw_low", "draw_high", "eq_low", "eq_high"}
+    safe |= {"edge", "shape"}
 
     def fields(node):
         if isinstance(node, dict):
@@ -271,7 +274,8 @@ def test_charts_compile_and_use_only_safe_field_names(mixed):
     for chart in charts:
         assert set(fields(chart.spec)) <= safe
         assert "<svg" in vlc.vegalite_to_svg(chart.spec)
-        for row in chart.spec["data"]["values"]:
+        records = chart.spec.get("datasets", {}).get("pairs") or chart.spec["data"]["values"]
+        for row in records:
             assert set(row) <= safe
 
 

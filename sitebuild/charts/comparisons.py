@@ -4,23 +4,39 @@ ever appear as data values."""
 
 from __future__ import annotations
 
+import math
+
 from ..sections import Chart
-from .theme import INK, MUTED, PALETTE, themed
+from .summary import MIN_DRAWN_N
+from .theme import (
+    DIMMED,
+    FOCUS,
+    INK,
+    PALETTE,
+    REFERENCE_COLOUR,
+    altair,
+    dashed_when_few,
+    edge_arrows,
+    focus_param,
+    themed,
+    to_spec,
+)
 
 MAX_FOREST_ROWS = 60
 MAX_MATRIX_GROUPS = 30
 
-# Verdict colours: from the Okabe–Ito palette; "differs" and "equivalent" far apart in hue.
+# Verdicts: colour and shape both differ, so they part in greyscale print and for readers who
+# do not tell two hues apart; "differs" is the strong crimson, "equivalent" the teal.
 STATUS_COLOURS = {
-    "differs": PALETTE[5],  # vermillion
-    "equivalent": PALETTE[2],  # bluish green
-    "inconclusive": PALETTE[1],  # orange
-    "no clear difference": MUTED,
+    "differs": PALETTE[0],  # crimson
+    "equivalent": PALETTE[1],  # teal
+    "inconclusive": PALETTE[2],  # ochre
+    "no clear difference": REFERENCE_COLOUR,  # neutral grey
 }
 STATUS_SHAPES = {
     "differs": "diamond",
     "equivalent": "square",
-    "inconclusive": "triangle-up",
+    "inconclusive": "triangle-down",
     "no clear difference": "circle",
 }
 # Adjusted p bands, strongest evidence darkest; our own sequential blues from the palette.
@@ -28,125 +44,293 @@ P_BANDS = ("p < 0.001", "p < 0.01", "p < alpha", "not significant")
 P_COLOURS = ("#0b4f7c", "#2f7fb8", "#8fc0e3", "#f1f1ee")
 
 
+def _level(p: float, q: float, alpha: float) -> float:
+    """The per-pair level at which this pair's unadjusted p is judged: alpha * p / q.
+
+    The verdict is "adjusted p below alpha", and q < alpha exactly when p < alpha * p / q, so
+    an interval at this level clears zero exactly when the verdict is "differs". For
+    Bonferroni it is alpha / m; for Holm and Benjamini–Hochberg, the step's level.
+    """
+    if q <= 0 or p <= 0:
+        return alpha
+    return min(alpha * p / q, alpha) if q >= p else alpha
+
+
+def decision_interval(pair: dict, alpha: float, confidence: float, welch: bool):
+    """Return the (low, high) interval of a pair's estimate that agrees with its verdict.
+
+    Notes
+    -----
+    Welch lead test: the pair's interval is rebuilt at the multiplicity-adjusted level
+    ``a* = alpha * p / p_adjusted`` from its own standard error and Welch df (recovered from
+    the unadjusted interval), ``D ± t(1 − a*/2, df)·se``; it clears zero exactly when
+    ``p < a*``, i.e. when the adjusted p is below alpha. Rank lead test: a test-based interval
+    (Miettinen 1976), ``se = |D| / z(1 − p/2)``, ``D ± z(1 − a*/2)·se``, which clears zero by
+    the same rule; when p is 1 or the shift is 0 the given interval is widened by
+    ``z(1 − a*/2) / z(1 − (1 − confidence)/2)``. None when a number is missing.
+
+    References
+    ----------
+    Miettinen, O. S. (1976). Estimability and estimation in case-referent studies.
+    Am. J. Epidemiol. 103(2), 226–235 (test-based confidence limits).
+    Holm, S. (1979). A simple sequentially rejective multiple test procedure.
+    Scand. J. Statist. 6(2), 65–70.
+
+    Examples
+    --------
+    >>> pair = {"estimate": 2.0, "ci_low": 0.5, "ci_high": 3.5, "p": 0.01, "p_adjusted": 0.06,
+    ...         "welch_df": 30.0}
+    >>> low, high = decision_interval(pair, 0.05, 0.95, welch=True)
+    >>> low < 0 < high  # adjusted p 0.06 > 0.05: the interval reaches zero
+    True
+    """
+    from scipy import stats
+
+    e, lo, hi = pair.get("estimate"), pair.get("ci_low"), pair.get("ci_high")
+    p, q = pair.get("p"), pair.get("p_adjusted")
+    if None in (e, lo, hi, p, q) or not all(map(math.isfinite, (e, lo, hi))):
+        return None
+    level = _level(p, q, alpha)
+    df = pair.get("welch_df")
+    if welch and df is not None and df > 0 and hi > lo:
+        se = (hi - lo) / (2 * stats.t.ppf(1 - (1 - confidence) / 2, df))
+        half = float(stats.t.ppf(1 - level / 2, df) * se)
+        return e - half, e + half
+    z_p = stats.norm.isf(p / 2) if 0 < p < 1 else None
+    if z_p and e != 0 and math.isfinite(z_p):
+        half = float(stats.norm.isf(level / 2) * abs(e) / z_p)
+        return e - half, e + half
+    k = float(stats.norm.isf(level / 2) / stats.norm.isf((1 - confidence) / 2))
+    return e - k * (e - lo), e + k * (hi - e)
+
+
+def equivalence_interval(pair: dict, alpha: float, confidence: float):
+    """Return the 1 − 2a* interval of the mean difference that agrees with the equivalence
+    verdict (two one-sided Welch tests at the adjusted level a* = alpha * p / p_adjusted):
+    it lies inside ±margin exactly when the adjusted TOST p is below alpha. None when a
+    number is missing.
+
+    References
+    ----------
+    Schuirmann, D. J. (1987). J. Pharmacokinet. Biopharm. 15(6), 657–680 (TOST and the
+    1 − 2α interval).
+
+    Examples
+    --------
+    >>> pair = {"mean_difference": 0.2, "mean_ci_low": -0.8, "mean_ci_high": 1.2,
+    ...         "welch_df": 40.0, "tost_p": 0.01, "tost_p_adjusted": 0.01}
+    >>> low, high = equivalence_interval(pair, 0.05, 0.95)
+    >>> high - low < 2.0  # a 90 % interval: narrower than the 95 % one
+    True
+    """
+    from scipy import stats
+
+    d, lo, hi = pair.get("mean_difference"), pair.get("mean_ci_low"), pair.get("mean_ci_high")
+    p, q, df = pair.get("tost_p"), pair.get("tost_p_adjusted"), pair.get("welch_df")
+    if None in (d, lo, hi, p, q, df) or not df > 0 or not hi > lo:
+        return None
+    level = _level(p, q, alpha)
+    se = (hi - lo) / (2 * stats.t.ppf(1 - (1 - confidence) / 2, df))
+    half = float(stats.t.ppf(1 - level, df) * se)
+    return d - half, d + half
+
+
 def forest_chart(entry: dict, mi: int) -> Chart | None:
-    """Return the forest chart of pairwise estimates with their intervals, sorted by size."""
+    """Return the forest chart of pairwise estimates with intervals that agree with the
+    verdicts (see :func:`decision_interval`), sorted by size."""
     pairs = [p for p in entry.get("pairs", []) if p.get("estimate") is not None]
     if not pairs:
         return None
     ranked = sorted(pairs, key=lambda p: -abs(p["estimate"]))[:MAX_FOREST_ROWS]
     ranked.sort(key=lambda p: p["estimate"])
-    rows = [
-        {
-            "label": f"{p['a']} − {p['b']}",
-            "x": p["estimate"],
-            "low": p.get("ci_low"),
-            "high": p.get("ci_high"),
-            "status": p.get("conclusion", ""),
-            "order": i,
-        }
-        for i, p in enumerate(ranked)
-    ]
-    est_name = ranked[0].get("estimate_name", "difference")
-    y = {
-        "field": "label",
-        "type": "nominal",
-        "sort": {"field": "order", "order": "descending"},
-        "title": None,
-        "axis": {"labelLimit": 220},
-    }
-    # Short enough for a half-width chart; the interval level is in the description.
-    x_title = f"{est_name} (first minus second)"
-    layers: list[dict] = []
+    alpha = entry.get("alpha", 0.05)
+    confidence = entry.get("confidence", 0.95)
+    welch = entry.get("centre", "mean") == "mean"
     margin = entry.get("margin")
-    if margin:
-        layers.append(
+    rows = []
+    for i, p in enumerate(ranked):
+        band = decision_interval(p, alpha, confidence, welch)
+        eq = equivalence_interval(p, alpha, confidence) if margin else None
+        rows.append(
             {
-                "data": {"values": [{"low": -margin, "high": margin}]},
-                "mark": {"type": "rect", "color": PALETTE[2], "opacity": 0.15},
-                "encoding": {
-                    "x": {"field": "low", "type": "quantitative"},
-                    "x2": {"field": "high"},
-                },
+                "label": f"{p['a']} − {p['b']}",
+                "a": p["a"],
+                "b": p["b"],
+                "x": p["estimate"],
+                "low": band[0] if band else None,
+                "high": band[1] if band else None,
+                "eq_low": eq[0] if eq else None,
+                "eq_high": eq[1] if eq else None,
+                "q": p.get("p_adjusted"),
+                "n_a": p.get("n_a"),
+                "n_b": p.get("n_b"),
+                "status": p.get("conclusion", ""),
+                "order": i,
             }
         )
-    layers.append(
-        {
-            "data": {"values": [{"x": 0}]},
-            "mark": {"type": "rule", "color": INK, "strokeDash": [4, 3]},
-            "encoding": {"x": {"field": "x", "type": "quantitative"}},
-        }
+    # Pairs with a group too small to trust do not set the axis (their interval can be ten
+    # times wider than the rest); their intervals are cut at its edge, marked by an arrow.
+    for r in rows:
+        r["few"] = bool(min(r["n_a"] or 0, r["n_b"] or 0) < MIN_DRAWN_N)
+    span = [0.0, *([-margin, margin] if margin else [])]
+    for r in rows:
+        span.append(r["x"])
+        if not r["few"]:
+            span.extend(
+                v for v in (r["low"], r["high"], r["eq_low"], r["eq_high"]) if v is not None
+            )
+    low_edge, high_edge = min(span), max(span)
+    pad = (high_edge - low_edge) * 0.05 or 1.0
+    low_edge, high_edge = low_edge - pad, high_edge + pad
+    arrows = []
+    for r in rows:
+        r["draw_low"] = None if r["low"] is None else max(r["low"], low_edge)
+        r["draw_high"] = None if r["high"] is None else min(r["high"], high_edge)
+        for key, edge, shape in (
+            ("low", low_edge, "triangle-left"),
+            ("high", high_edge, "triangle-right"),
+        ):
+            value = r[key]
+            if value is not None and (value < edge if key == "low" else value > edge):
+                arrows.append(
+                    {"label": r["label"], "order": r["order"], "edge": edge, "shape": shape}
+                )
+        for key in ("eq_low", "eq_high"):
+            if r[key] is not None:
+                r[key] = min(max(r[key], low_edge), high_edge)
+    est_name = ranked[0].get("estimate_name", "difference")
+    measure = entry["measure"]
+    alt = altair()
+    y = alt.Y(
+        field="label",
+        type="nominal",
+        sort=alt.EncodingSortField(field="order", order="descending"),
+        title=None,
+        axis=alt.Axis(labelLimit=220),
     )
-    colour = {
-        "field": "status",
-        "type": "nominal",
-        "title": "Verdict",
-        "scale": {"domain": list(STATUS_COLOURS), "range": list(STATUS_COLOURS.values())},
-        "legend": {"columns": 2},
-    }
-    layers.append(
-        {
-            "mark": {"type": "rule", "strokeWidth": 2},
-            "encoding": {
-                "y": y,
-                "x": {"field": "low", "type": "quantitative", "title": x_title},
-                "x2": {"field": "high"},
-                "color": colour,
-            },
-        }
+    # The measure's name carries its unit ("leaf mass (g)"); short enough for a half-width chart.
+    x_title = f"{est_name} in {measure}, first minus second"
+    occurring = [s for s in STATUS_COLOURS if any(r["status"] == s for r in rows)]
+
+    def picked(full: float):
+        # Dim the pairs that do not involve the picked group.
+        test = f"{FOCUS} != null && datum.a !== {FOCUS} && datum.b !== {FOCUS}"
+        return alt.OpacityValue(condition={"test": test, "value": DIMMED}, value=full)
+
+    colour = alt.Color(
+        field="status",
+        type="nominal",
+        title="Verdict",
+        scale=alt.Scale(domain=occurring, range=[STATUS_COLOURS[s] for s in occurring]),
     )
+    layers = []
+    if margin:
+        layers.append(
+            alt.Chart(alt.Data(values=[{"low": -margin, "high": margin}]))
+            .mark_rect(color=PALETTE[1], opacity=0.12)
+            .encode(x=alt.X(field="low", type="quantitative"), x2=alt.X2(field="high"))
+        )
     layers.append(
-        {
-            "mark": {"type": "point", "filled": True, "size": 70},
-            "encoding": {
-                "y": y,
-                "x": {"field": "x", "type": "quantitative"},
-                "color": colour,
-                # Shape repeats the verdict so it does not rest on colour alone (print, and
-                # readers who do not tell vermillion from orange).
-                "shape": {
-                    "field": "status",
-                    "type": "nominal",
-                    "title": "Verdict",
-                    "scale": {
-                        "domain": list(STATUS_SHAPES),
-                        "range": list(STATUS_SHAPES.values()),
-                    },
-                    "legend": {"columns": 2},
-                },
-                "tooltip": [
-                    {"field": "label", "type": "nominal", "title": "Pair"},
-                    {"field": "x", "type": "quantitative", "title": "Estimate", "format": ".3g"},
-                    {"field": "low", "type": "quantitative", "title": "Low", "format": ".3g"},
-                    {"field": "high", "type": "quantitative", "title": "High", "format": ".3g"},
-                    {"field": "status", "type": "nominal", "title": "Verdict"},
-                ],
-            },
-        }
+        alt.Chart(alt.Data(values=[{"x": 0}]))
+        .mark_rule(color=INK, strokeDash=[4, 3])
+        .encode(x=alt.X(field="x", type="quantitative"))
     )
-    spec = {
-        "data": {"values": rows},
-        "height": max(60, 22 * len(rows)),
-        "width": "container",
-        "layer": layers,
-    }
+    if margin and any(r["eq_low"] is not None for r in rows):
+        layers.append(
+            alt.Chart()
+            .transform_filter("isValid(datum.eq_low) && isValid(datum.eq_high)")
+            .mark_bar(size=9, color=PALETTE[1])
+            .encode(
+                y=y,
+                x=alt.X(field="eq_low", type="quantitative"),
+                x2=alt.X2(field="eq_high"),
+                opacity=picked(0.35),
+            )
+        )
+    layers.append(
+        alt.Chart()
+        .transform_filter("isValid(datum.draw_low) && isValid(datum.draw_high)")
+        .mark_rule(strokeWidth=2.5)
+        .encode(
+            y=y,
+            x=alt.X(
+                field="draw_low",
+                type="quantitative",
+                title=x_title,
+                scale=alt.Scale(domain=[low_edge, high_edge], nice=False, zero=False),
+            ),
+            x2=alt.X2(field="draw_high"),
+            strokeDash=dashed_when_few(),
+            color=colour,
+            opacity=picked(1),
+        )
+    )
+    fmt = ".4~g"
+    layers.append(
+        alt.Chart()
+        .mark_point(filled=True, size=90, stroke="#ffffff", strokeWidth=1)
+        .encode(
+            y=y,
+            x=alt.X(field="x", type="quantitative"),
+            color=colour,
+            shape=alt.Shape(
+                field="status",
+                type="nominal",
+                title="Verdict",
+                scale=alt.Scale(domain=occurring, range=[STATUS_SHAPES[s] for s in occurring]),
+            ),
+            opacity=picked(1),
+            tooltip=[
+                alt.Tooltip(field="label", type="nominal", title="Pair"),
+                alt.Tooltip(
+                    field="x", type="quantitative", title=f"{est_name} ({measure})", format=fmt
+                ),
+                alt.Tooltip(field="low", type="quantitative", title="Interval low", format=fmt),
+                alt.Tooltip(field="high", type="quantitative", title="Interval high", format=fmt),
+                alt.Tooltip(field="q", type="quantitative", title="Adjusted p", format=".3g"),
+                alt.Tooltip(field="n_a", type="quantitative", title="n (first)"),
+                alt.Tooltip(field="n_b", type="quantitative", title="n (second)"),
+                alt.Tooltip(field="status", type="nominal", title="Verdict"),
+            ],
+        )
+    )
+    layers.extend(edge_arrows(arrows, {"y": y}))
+    groups = sorted({r["a"] for r in rows} | {r["b"] for r in rows})
+    chart = (
+        alt.layer(*layers, data=alt.NamedData(name="pairs"))
+        .properties(
+            height=max(60, 22 * len(rows)),
+            width="container",
+            usermeta={"measure": measure, "kind": "forest", "groups": groups},
+        )
+        .add_params(focus_param())
+    )
     shown = "" if len(ranked) == len(pairs) else f" (the {len(ranked)} largest of {len(pairs)})"
-    band = f"; the shaded band is the equivalence margin ±{margin:g}" if margin else ""
     family = entry.get("family") or {}
-    if (family.get("size") or 0) > 1 and family.get("adjust") not in (None, "none"):
-        band += (
-            ". Each interval is for its pair alone, while the verdicts use p-values adjusted "
-            f"across the {family['size']} comparisons, so an interval that only just clears zero "
-            "can still read 'no clear difference'"
+    adjusted = (family.get("size") or 0) > 1 and family.get("adjust") not in (None, "none")
+    if adjusted:
+        what = (
+            f"intervals widened for the {family['size']} comparisons to the level of their "
+            f"{family.get('adjust_name', 'adjusted')} p-values, so an interval clears zero "
+            "exactly when its verdict is 'differs'"
+        )
+    else:
+        what = f"{confidence:.0%} intervals, which clear zero exactly when the verdict is 'differs'"
+    band = ""
+    if margin:
+        band = (
+            f"; the shaded band is the equivalence margin ±{margin:g}, and the pale bar on each "
+            "row is the difference in means' 1 − 2α interval at the adjusted level, which lies "
+            "inside the band exactly when the verdict is 'equivalent'"
         )
     return Chart(
         id=f"cmp-{mi}-forest",
-        title=f"Pairwise differences in {entry['measure']}",
+        title=f"Pairwise differences in {measure}",
         description=(
             f"Estimated {est_name} for each compared pair{shown}, sorted by size, with "
-            f"{entry.get('confidence', 0.95):.0%} intervals; the dashed line marks no "
-            f"difference{band}."
+            f"{what}; the dashed line marks no difference{band}."
         ),
-        spec=themed(spec),
+        spec=to_spec(chart, {"pairs": rows}),
         table=f"cmp-{mi}-pairs",
     )
 
@@ -187,11 +371,19 @@ def pvalue_matrix_chart(entry: dict, mi: int) -> Chart | None:
             "x": {
                 "field": "col",
                 "type": "nominal",
-                "sort": groups,
+                # Order by the scale's domain, not a sort list: Vega-Lite writes a sort list
+                # into expression code, where a label with U+2028 breaks the chart.
+                "scale": {"domain": groups},
                 "title": None,
                 "axis": {**axis, "labelAngle": -40},
             },
-            "y": {"field": "row", "type": "nominal", "sort": groups, "title": None, "axis": axis},
+            "y": {
+                "field": "row",
+                "type": "nominal",
+                "scale": {"domain": groups},
+                "title": None,
+                "axis": axis,
+            },
         },
         "layer": [
             {

@@ -3,7 +3,21 @@ inline data under fixed field names; user text appears only as data values and t
 
 from __future__ import annotations
 
-from .theme import DIVERGING, INK, MUTED, group_colour_scale, themed
+import numpy as np
+
+from .theme import (
+    DIVERGING,
+    INK,
+    MARKER_SIZE,
+    MARKER_STROKE,
+    MUTED,
+    altair,
+    dimmed_unless_picked,
+    focus_param,
+    group_encoding,
+    themed,
+    to_spec,
+)
 
 NULL_FILL = "#eceff2"
 
@@ -33,8 +47,9 @@ def correlation_heatmap(cells: list[dict], columns: list[str], alpha: float) -> 
                 }
             )
     size = max(36 * len(columns), 120)
-    x = {"field": "a", "type": "nominal", "sort": list(columns), "title": None}
-    y = {"field": "b", "type": "nominal", "sort": list(columns), "title": None}
+    # Ordered by the scales' domains: a sort list would be written into expression code.
+    x = {"field": "a", "type": "nominal", "scale": {"domain": list(columns)}, "title": None}
+    y = {"field": "b", "type": "nominal", "scale": {"domain": list(columns)}, "title": None}
     tooltip = [
         {"field": "a", "type": "nominal", "title": "Column"},
         {"field": "b", "type": "nominal", "title": "With"},
@@ -114,17 +129,53 @@ def correlation_heatmap(cells: list[dict], columns: list[str], alpha: float) -> 
 MAX_GROUP_BANDS = 3  # group smooths drawn with their bands; more are drawn as lines only
 
 
+JITTER_SEED = 16  # fixed: the same data give the same picture on every build
+JITTER_WIDTH = 0.3  # share of the step between whole-number x values (either side)
+
+
+def jittered(points: list[dict]) -> tuple[list[dict], bool]:
+    """Return (points, whether x was jittered): a whole-number x with few distinct values
+    (order lines, counts) piles points into stripes, so each point is moved sideways by a
+    seeded uniform amount of at most ±0.3 of a step; ``x_value`` keeps the true value."""
+    xs = [p["x"] for p in points if isinstance(p.get("x"), int | float)]
+    whole = bool(xs) and all(float(v).is_integer() for v in xs)
+    if not whole or len(set(xs)) > 60 or len(set(xs)) == len(xs):
+        return points, False
+    rng = np.random.default_rng(JITTER_SEED)
+    shifts = rng.uniform(-JITTER_WIDTH, JITTER_WIDTH, size=len(points))
+    out = []
+    for p, d in zip(points, shifts, strict=True):
+        x = p.get("x")
+        moved = x + float(d) if isinstance(x, int | float) else x
+        out.append({**p, "x": moved, "x_value": x})
+    return out, True
+
+
 def scatter_with_smooths(
-    scatter: dict, smooths: list[dict], line: dict | None, groups: list[str]
+    scatter: dict,
+    smooths: list[dict],
+    line: dict | None,
+    groups: list[str],
+    group_by: str | None = None,
+    reference: str | None = None,
 ) -> dict:
-    """Return a scatter of sampled points by group with LOESS lines, bands and a straight line."""
-    colour = {
-        "field": "group",
-        "type": "nominal",
-        "title": "Group",
-        "scale": group_colour_scale(groups),
-    }
-    x = {"field": "x", "type": "quantitative", "title": scatter["x"], "scale": {"zero": False}}
+    """Return a scatter of sampled points by group with LOESS lines, bands and a straight line.
+
+    Groups are told apart by colour and shape (hollow markers, one legend titled with the group
+    column's name); a whole-number x is jittered (see :func:`jittered`).
+    """
+    alt = altair()
+    look = group_encoding(groups, group_by or "Group", reference)
+    colour = alt.Color(**look["color"])
+    points, jitter = jittered(scatter["points"])
+    x = alt.X(
+        field="x",
+        type="quantitative",
+        title=scatter["x"],
+        scale=alt.Scale(zero=False),
+        # Jittered whole numbers keep whole-number ticks ("1, 2", not "1.0, 2.0").
+        **({"axis": alt.Axis(tickMinStep=1, format="d")} if jitter else {}),
+    )
     y_title = scatter["y"]
     curve_groups = {s["group"] for s in smooths if s["group"] is not None}
     # Beyond a few groups, overlapping bands blur into one another: the group smooths are then
@@ -141,114 +192,94 @@ def scatter_with_smooths(
     overall = [
         p for s in smooths if s["group"] is None for p in s["points"] if p["fit"] is not None
     ]
-    layers: list[dict] = [
-        {
-            "data": {"name": "points"},
-            "mark": {"type": "point", "filled": True, "size": 16, "opacity": 0.45},
-            "encoding": {
-                # Shape repeats the colour so groups part without colour vision (and in
-                # print); one legend, as both scales share the groups and the title.
-                "shape": {
-                    "field": "group",
-                    "type": "nominal",
-                    "title": "Group",
-                    "scale": {"domain": list(groups)},
-                },
-                "x": x,
-                "y": {
-                    "field": "y",
-                    "type": "quantitative",
-                    "title": y_title,
-                    "scale": {"zero": False},
-                },
-                "color": colour,
-                "tooltip": [
-                    {"field": "group", "type": "nominal", "title": "Group"},
-                    {"field": "x", "type": "quantitative", "title": scatter["x"]},
-                    {"field": "y", "type": "quantitative", "title": y_title},
-                ],
-            },
-        }
+    fit = alt.Y(field="fit", type="quantitative")
+    layers = [
+        alt.Chart(alt.NamedData(name="points"))
+        .mark_point(filled=False, size=MARKER_SIZE, strokeWidth=MARKER_STROKE)
+        .encode(
+            # Shape repeats the colour so groups part without colour vision (and in print);
+            # one legend, as both scales share the groups and the title.
+            shape=alt.Shape(**look["shape"]),
+            x=x,
+            y=alt.Y(field="y", type="quantitative", title=y_title, scale=alt.Scale(zero=False)),
+            color=colour,
+            opacity=dimmed_unless_picked(full=0.8),
+            tooltip=[
+                alt.Tooltip(field="group", type="nominal", title=group_by or "Group"),
+                alt.Tooltip(
+                    field="x_value" if jitter else "x", type="quantitative", title=scatter["x"]
+                ),
+                alt.Tooltip(field="y", type="quantitative", title=y_title),
+            ],
+        )
     ]
     # Named datasets: each curve's rows are shipped once and shared by its band and line layers.
-    datasets = {"points": scatter["points"], "curves": group_curves, "overall": overall}
-    has_band = {"filter": "isValid(datum.low) && isValid(datum.high)"}
+    datasets = {"points": points, "curves": group_curves, "overall": overall}
+    has_band = "isValid(datum.low) && isValid(datum.high)"
+    band = {"y": alt.Y(field="low", type="quantitative"), "y2": alt.Y2(field="high")}
     if group_curves and group_bands:
         layers.append(
-            {
-                "data": {"name": "curves"},
-                "transform": [has_band],
-                "mark": {"type": "area", "opacity": 0.12},
-                "encoding": {
-                    "x": x,
-                    "y": {"field": "low", "type": "quantitative"},
-                    "y2": {"field": "high"},
-                    "color": colour,
-                },
-            }
+            alt.Chart(alt.NamedData(name="curves"))
+            .transform_filter(has_band)
+            .mark_area()
+            .encode(x=x, color=colour, opacity=dimmed_unless_picked(full=0.12), **band)
         )
     if group_curves:
         layers.append(
-            {
-                "data": {"name": "curves"},
-                "mark": {"type": "line", "strokeWidth": 1.8},
-                "encoding": {
-                    "x": x,
-                    "y": {"field": "fit", "type": "quantitative"},
-                    "color": colour,
-                    "detail": {"field": "group", "type": "nominal"},
-                },
-            }
+            alt.Chart(alt.NamedData(name="curves"))
+            .mark_line(strokeWidth=2.2)
+            .encode(
+                x=x,
+                y=fit,
+                color=colour,
+                detail=alt.Detail(field="group", type="nominal"),
+                opacity=dimmed_unless_picked(),
+            )
         )
     if overall:
+        overall_data = alt.NamedData(name="overall")
         layers.append(
-            {
-                "data": {"name": "overall"},
-                "transform": [has_band],
-                "mark": {"type": "area", "color": INK, "opacity": 0.15},
-                "encoding": {
-                    "x": x,
-                    "y": {"field": "low", "type": "quantitative"},
-                    "y2": {"field": "high"},
-                },
-            }
+            alt.Chart(overall_data)
+            .transform_filter(has_band)
+            .mark_area(color=INK, opacity=0.15)
+            .encode(x=x, **band)
         )
         # A white casing under the all-rows smooth keeps it apart from the group lines.
         layers.append(
-            {
-                "data": {"name": "overall"},
-                "mark": {"type": "line", "color": "#ffffff", "strokeWidth": 5.5},
-                "encoding": {"x": x, "y": {"field": "fit", "type": "quantitative"}},
-            }
+            alt.Chart(overall_data).mark_line(color="#ffffff", strokeWidth=5.5).encode(x=x, y=fit)
         )
         layers.append(
-            {
-                "data": {"name": "overall"},
-                "mark": {"type": "line", "color": INK, "strokeWidth": 3},
-                "encoding": {
-                    "x": x,
-                    "y": {"field": "fit", "type": "quantitative"},
-                    "tooltip": [
-                        {"field": "x", "type": "quantitative", "title": scatter["x"]},
-                        {"field": "fit", "type": "quantitative", "title": "smooth, all rows"},
-                        {"field": "low", "type": "quantitative", "title": "band low"},
-                        {"field": "high", "type": "quantitative", "title": "band high"},
-                    ],
-                },
-            }
+            alt.Chart(overall_data)
+            .mark_line(color=INK, strokeWidth=3)
+            .encode(
+                x=x,
+                y=fit,
+                tooltip=[
+                    alt.Tooltip(field="x", type="quantitative", title=scatter["x"]),
+                    alt.Tooltip(field="fit", type="quantitative", title="smooth, all rows"),
+                    alt.Tooltip(field="low", type="quantitative", title="band low"),
+                    alt.Tooltip(field="high", type="quantitative", title="band high"),
+                ],
+            )
         )
     if line and line["slope"] is not None and overall:
         lo, hi = overall[0]["x"], overall[-1]["x"]
         ends = [{"x": v, "fit": line["intercept"] + line["slope"] * v} for v in (lo, hi)]
         layers.append(
-            {
-                "data": {"values": ends},
-                "mark": {"type": "line", "color": MUTED, "strokeDash": [6, 4], "strokeWidth": 1.6},
-                "encoding": {"x": x, "y": {"field": "fit", "type": "quantitative"}},
-            }
+            alt.Chart(alt.Data(values=ends))
+            .mark_line(color=MUTED, strokeDash=[6, 4], strokeWidth=1.6)
+            .encode(x=x, y=fit)
         )
-    spec = {"width": "container", "height": 300, "datasets": datasets, "layer": layers}
-    return themed(spec)
+    chart = (
+        alt.layer(*layers)
+        .properties(
+            width="container",
+            height=300,
+            usermeta={"measure": y_title, "kind": "scatter", "groups": list(groups)},
+        )
+        .add_params(focus_param())
+    )
+    return to_spec(chart, datasets)
 
 
 def with_date_axis(spec: dict, origin_ms: int) -> dict:

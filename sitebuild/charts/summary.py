@@ -2,23 +2,45 @@
 
 from __future__ import annotations
 
-from .theme import INK, MUTED, group_colour_scale, themed
+from .theme import (
+    INK,
+    MARKER_SIZE,
+    MARKER_STROKE,
+    MUTED,
+    altair,
+    dashed_when_few,
+    dimmed_unless_picked,
+    edge_arrows,
+    focus_opacity,
+    focus_param,
+    group_colour_scale,
+    group_encoding,
+    themed,
+    to_spec,
+    with_focus,
+)
 
 ROW_HEIGHT = 26
+# Groups with fewer values than this are drawn hollow and faint, and their intervals do not
+# set the axis: a 3-value group's interval can be ten times wider than everyone else's
+# (common practice: below about 5 values an interval says little).
+MIN_DRAWN_N = 5
 
 
-def _group_colour(all_groups: list[str]) -> dict:
+def _group_colour(all_groups: list[str], reference: str | None = None) -> dict:
     """Colour by group, the same colour for a group on every chart; no legend (axis names it)."""
     return {
         "field": "group",
         "type": "nominal",
-        "scale": group_colour_scale(all_groups),
+        "scale": group_colour_scale(all_groups, reference),
         "legend": None,
     }
 
 
 def _group_axis(groups: list[str]) -> dict:
-    return {"field": "group", "type": "nominal", "sort": list(groups), "title": None}
+    # Ordered by the scale's domain, not a sort list: Vega-Lite writes a sort list into
+    # expression code, where a label holding U+2028 stops the chart from drawing.
+    return {"field": "group", "type": "nominal", "scale": {"domain": list(groups)}, "title": None}
 
 
 def value_format(rows: list[dict]) -> str:
@@ -30,91 +52,159 @@ def value_format(rows: list[dict]) -> str:
     return ".4~g" if decimals is None else f",.{decimals}f"
 
 
-def mean_intervals(rows: list[dict], all_groups: list[str], measure: str) -> dict:
-    """Return a dot-and-interval chart: each group's mean with its confidence interval."""
-    values = [
-        {
-            "group": r["group"],
-            "mean": r["mean"],
-            "low": r["ci_low"],
-            "high": r["ci_high"],
-            "n": r["n"],
-        }
-        for r in rows
-        if r["mean"] is not None
+def axis_extent(rows: list[dict], min_n: int = MIN_DRAWN_N) -> tuple[float, float] | None:
+    """Return the x range the mean chart draws: every mean, and the intervals of the groups
+    with at least ``min_n`` values (5 % padding); None when nothing is finite."""
+    points = []
+    for r in rows:
+        if r.get("mean") is None:
+            continue
+        points.append(r["mean"])
+        if (r.get("n") or 0) >= min_n:
+            points.extend(v for v in (r.get("ci_low"), r.get("ci_high")) if v is not None)
+    if not points:
+        return None
+    low, high = min(points), max(points)
+    pad = (high - low) * 0.05 or abs(high) * 0.05 or 1.0
+    return low - pad, high + pad
+
+
+def mean_intervals(
+    rows: list[dict],
+    all_groups: list[str],
+    measure: str,
+    group_by: str | None = None,
+    reference: str | None = None,
+) -> dict:
+    """Return a dot-and-interval chart: each group's mean with its confidence interval.
+
+    Groups smaller than :data:`MIN_DRAWN_N` are drawn faint with a dashed interval and do not
+    set the axis; an interval running past the axis is cut at its edge, where an arrow shows
+    that it goes on.
+    """
+    extent = axis_extent(rows)
+    values = []
+    for r in rows:
+        if r["mean"] is None:
+            continue
+        low, high = r["ci_low"], r["ci_high"]
+        cut_low = extent is not None and low is not None and low < extent[0]
+        cut_high = extent is not None and high is not None and high > extent[1]
+        values.append(
+            {
+                "group": r["group"],
+                "mean": r["mean"],
+                "low": r["ci_low"],
+                "high": r["ci_high"],
+                # Drawn ends: the interval cut at the axis' edges.
+                "draw_low": extent[0] if cut_low else low,
+                "draw_high": extent[1] if cut_high else high,
+                "n": r["n"],
+                "few": bool((r["n"] or 0) < MIN_DRAWN_N),
+            }
+        )
+    arrows = [
+        {"group": v["group"], "edge": v[end], "shape": shape, "n": v["n"]}
+        for v in values
+        for end, shape, cut in (
+            ("draw_low", "triangle-left", v["low"] is not None and v["draw_low"] != v["low"]),
+            ("draw_high", "triangle-right", v["high"] is not None and v["draw_high"] != v["high"]),
+        )
+        if cut
     ]
     shown = [r["group"] for r in rows]
-    colour = _group_colour(all_groups)
+    groups = group_encoding(all_groups, group_by, reference, legend=False)
     y = _group_axis(shown)
     fmt = value_format(rows)
+    alt = altair()
     tooltip = [
-        {"field": "group", "title": "Group"},
-        {"field": "mean", "title": "Mean", "format": fmt},
-        {"field": "low", "title": "CI low", "format": fmt},
-        {"field": "high", "title": "CI high", "format": fmt},
-        {"field": "n", "title": "n"},
+        alt.Tooltip(field="group", type="nominal", title=group_by or "Group"),
+        alt.Tooltip(field="mean", type="quantitative", title=f"Mean {measure}", format=fmt),
+        alt.Tooltip(field="low", type="quantitative", title="CI low", format=fmt),
+        alt.Tooltip(field="high", type="quantitative", title="CI high", format=fmt),
+        alt.Tooltip(field="n", type="quantitative", title="n"),
     ]
-    return themed(
+    x_scale = alt.Scale(zero=False, nice=False, **({"domain": list(extent)} if extent else {}))
+    y = alt.Y(field="group", type="nominal", scale=alt.Scale(domain=shown), title=None)
+    colour = alt.Color(**groups["color"])
+    interval = (
+        alt.Chart()
+        .transform_filter("isValid(datum.draw_low) && isValid(datum.draw_high)")
+        .mark_rule(strokeWidth=2.5, clip=True)
+        .encode(
+            x=alt.X(field="draw_low", type="quantitative", title=measure, scale=x_scale),
+            x2=alt.X2(field="draw_high"),
+            y=y,
+            color=colour,
+            strokeDash=dashed_when_few(),
+            opacity=dimmed_unless_picked(),
+            tooltip=tooltip,
+        )
+    )
+    # Filled in the group's colour; a group too small to trust is left hollow.
+    mean = (
+        alt.Chart()
+        .mark_point(filled=True, size=MARKER_SIZE * 1.3, strokeWidth=MARKER_STROKE + 0.4, clip=True)
+        .encode(
+            x=alt.X(field="mean", type="quantitative"),
+            y=y,
+            stroke=alt.Stroke(**groups["color"]),
+            fill=alt.Fill(**groups["color"], condition={"test": "datum.few", "value": "#ffffff"}),
+            shape=alt.Shape(**groups["shape"]),
+            opacity=dimmed_unless_picked(few=True),
+            tooltip=tooltip,
+        )
+    )
+    arrows = edge_arrows(
+        arrows,
         {
-            "data": {"values": values},
+            "y": y,
+            "tooltip": [
+                alt.Tooltip(field="group", type="nominal", title=group_by or "Group"),
+                alt.Tooltip(field="n", type="quantitative", title="n"),
+            ],
+        },
+        MUTED,
+    )
+    chart = (
+        alt.layer(interval, mean, *arrows, data=alt.NamedData(name="means"))
+        .properties(
             # A fixed height of one row per group (a "step" height would make Vega-Lite drop
             # the fit to the container's width with a warning).
-            "height": ROW_HEIGHT * max(1, len(shown)),
-            "width": "container",
-            "encoding": {"y": y},
-            "layer": [
-                {
-                    "mark": {"type": "rule", "strokeWidth": 2},
-                    "encoding": {
-                        "x": {
-                            "field": "low",
-                            "type": "quantitative",
-                            "title": measure,
-                            "scale": {"zero": False},
-                        },
-                        "x2": {"field": "high"},
-                        "color": colour,
-                        "tooltip": tooltip,
-                    },
-                },
-                {
-                    "mark": {
-                        "type": "point",
-                        "filled": True,
-                        "size": 70,
-                        "stroke": INK,
-                        "strokeWidth": 0.5,
-                    },
-                    "encoding": {
-                        "x": {"field": "mean", "type": "quantitative"},
-                        "color": colour,
-                        "tooltip": tooltip,
-                    },
-                },
-            ],
-        }
+            height=ROW_HEIGHT * max(1, len(shown)),
+            width="container",
+            usermeta={"measure": measure, "kind": "means", "groups": list(all_groups)},
+        )
+        .add_params(focus_param())
     )
+    return to_spec(chart, {"means": values})
 
 
-HIST_WIDTH = (
-    800  # px per histogram panel (faceted views cannot fill the box); narrow screens scroll
-)
+HIST_WIDTH = 800  # px per histogram panel; the page's script narrows it to the box
 
 
 def histograms(
-    dist: dict, shown: list[str], all_groups: list[str], measure: str, fmt: str = ".4~g"
+    dist: dict,
+    shown: list[str],
+    all_groups: list[str],
+    measure: str,
+    fmt: str = ".4~g",
+    group_by: str | None = None,
+    reference: str | None = None,
 ) -> dict:
     """Return small-multiple histograms on shared bins, one row per group, as shares."""
     edges = dist["edges"]
     values = []
+    position = {g: i for i, g in enumerate(shown)}
     for g in dist["groups"]:
-        if g["group"] not in shown:
+        if g["group"] not in position:
             continue
         total = sum(g["counts"]) or 1
         for i, count in enumerate(g["counts"]):
             values.append(
                 {
                     "group": g["group"],
+                    "position": position[g["group"]],
                     "start": edges[i],
                     "end": edges[i + 1],
                     "count": count,
@@ -122,49 +212,71 @@ def histograms(
                 }
             )
     return themed(
-        {
-            "data": {"values": values},
-            "mark": {"type": "rect", "stroke": "#ffffff", "strokeWidth": 0.5},
-            # A faceted view cannot take the container's width, so it gets a fixed one.
-            "width": HIST_WIDTH,
-            "height": 60,
-            "encoding": {
-                "x": {
-                    "field": "start",
-                    "type": "quantitative",
-                    "title": measure,
-                    "scale": {"zero": False},
+        with_focus(
+            {
+                "data": {"values": values},
+                "mark": {"type": "rect", "stroke": "#ffffff", "strokeWidth": 0.5},
+                # A faceted view cannot take the container's width, so it gets a fixed one that
+                # the page's script narrows to the box it is drawn in (usermeta.fit_width).
+                "width": HIST_WIDTH,
+                "height": 60,
+                "encoding": {
+                    "x": {
+                        "field": "start",
+                        "type": "quantitative",
+                        "title": measure,
+                        "scale": {"zero": False},
+                    },
+                    "x2": {"field": "end"},
+                    "y": {
+                        "field": "share",
+                        "type": "quantitative",
+                        "title": None,  # it would repeat over every panel; the description says "share"
+                        "axis": {"format": "~%", "tickCount": 2},
+                    },
+                    "row": {
+                        "field": "group",
+                        "type": "nominal",
+                        # By each group's position (a sort list would become expression code).
+                        "sort": {"field": "position", "op": "min"},
+                        "title": None,
+                        # Names above each panel, so the panels keep the width on a phone.
+                        "header": {
+                            "labelAngle": 0,
+                            "labelAlign": "left",
+                            "labelAnchor": "start",
+                            "labelOrient": "top",
+                            "labelLimit": 320,
+                            "labelPadding": 2,
+                            "labelFontWeight": 600,
+                        },
+                    },
+                    "color": _group_colour(all_groups, reference),
+                    "opacity": focus_opacity(),
+                    "tooltip": [
+                        {"field": "group", "title": group_by or "Group"},
+                        {"field": "start", "title": "From", "format": fmt},
+                        {"field": "end", "title": "To", "format": fmt},
+                        {"field": "count", "title": "Count"},
+                        {"field": "share", "title": "Share", "format": ".1%"},
+                    ],
                 },
-                "x2": {"field": "end"},
-                "y": {
-                    "field": "share",
-                    "type": "quantitative",
-                    "title": "Share",
-                    "axis": {"format": "~%", "tickCount": 2},
-                },
-                "row": {
-                    "field": "group",
-                    "type": "nominal",
-                    "sort": list(shown),
-                    "title": None,
-                    "header": {"labelAngle": 0, "labelAlign": "left", "labelLimit": 160},
-                },
-                "color": _group_colour(all_groups),
-                "tooltip": [
-                    {"field": "group", "title": "Group"},
-                    {"field": "start", "title": "From", "format": fmt},
-                    {"field": "end", "title": "To", "format": fmt},
-                    {"field": "count", "title": "Count"},
-                    {"field": "share", "title": "Share", "format": ".1%"},
-                ],
+                "resolve": {"scale": {"y": "independent"}},
+                "usermeta": {"measure": measure, "kind": "histograms", "fit_width": True},
             },
-            "resolve": {"scale": {"y": "independent"}},
-        }
+            all_groups,
+        )
     )
 
 
 def boxes(
-    dist: dict, shown: list[str], all_groups: list[str], measure: str, fmt: str = ".4~g"
+    dist: dict,
+    shown: list[str],
+    all_groups: list[str],
+    measure: str,
+    fmt: str = ".4~g",
+    group_by: str | None = None,
+    reference: str | None = None,
 ) -> dict:
     """Return horizontal box views from precomputed quartiles, whiskers and outlier points."""
     boxes_data, points = [], []
@@ -175,58 +287,64 @@ def boxes(
             {k: g[k] for k in ("group", "q1", "median", "q3", "whisker_low", "whisker_high")}
         )
         points.extend({"group": g["group"], "value": v} for v in g["outlier_points"])
-    colour = _group_colour(all_groups)
+    colour = _group_colour(all_groups, reference)
     y = _group_axis(shown)
     x_title = {"title": measure, "scale": {"zero": False}}
     outliers = {
         "data": {"values": points},
-        "mark": {"type": "point", "size": 18, "opacity": 0.7, "filled": False},
+        "mark": {"type": "point", "size": 30, "filled": False, "strokeWidth": 1.2},
         "encoding": {
             "x": {"field": "value", "type": "quantitative"},
             "color": colour,
+            "opacity": focus_opacity(full=0.8),
             "tooltip": [
-                {"field": "group", "title": "Group"},
+                {"field": "group", "title": group_by or "Group"},
                 {"field": "value", "title": "Value", "format": fmt},
             ],
         },
     }
     return themed(
-        {
-            # A fixed height of one row per group (a "step" height would make Vega-Lite drop
-            # the fit to the container's width with a warning).
-            "height": ROW_HEIGHT * max(1, len(shown)),
-            "width": "container",
-            "encoding": {"y": y},
-            "layer": [
-                {
-                    "data": {"values": boxes_data},
-                    "mark": {"type": "rule", "color": MUTED},
-                    "encoding": {
-                        "x": {"field": "whisker_low", "type": "quantitative", **x_title},
-                        "x2": {"field": "whisker_high"},
+        with_focus(
+            {
+                # A fixed height of one row per group (a "step" height would make Vega-Lite drop
+                # the fit to the container's width with a warning).
+                "height": ROW_HEIGHT * max(1, len(shown)),
+                "width": "container",
+                "encoding": {"y": y},
+                "usermeta": {"measure": measure, "kind": "boxes"},
+                "layer": [
+                    {
+                        "data": {"values": boxes_data},
+                        "mark": {"type": "rule", "color": MUTED},
+                        "encoding": {
+                            "x": {"field": "whisker_low", "type": "quantitative", **x_title},
+                            "x2": {"field": "whisker_high"},
+                        },
                     },
-                },
-                {
-                    "data": {"values": boxes_data},
-                    "mark": {"type": "bar", "size": 14, "opacity": 0.85},
-                    "encoding": {
-                        "x": {"field": "q1", "type": "quantitative"},
-                        "x2": {"field": "q3"},
-                        "color": colour,
-                        "tooltip": [
-                            {"field": "group", "title": "Group"},
-                            {"field": "q1", "title": "Q1", "format": fmt},
-                            {"field": "median", "title": "Median", "format": fmt},
-                            {"field": "q3", "title": "Q3", "format": fmt},
-                        ],
+                    {
+                        "data": {"values": boxes_data},
+                        "mark": {"type": "bar", "size": 14},
+                        "encoding": {
+                            "x": {"field": "q1", "type": "quantitative"},
+                            "x2": {"field": "q3"},
+                            "color": colour,
+                            "opacity": focus_opacity(full=0.85),
+                            "tooltip": [
+                                {"field": "group", "title": group_by or "Group"},
+                                {"field": "q1", "title": "Q1", "format": fmt},
+                                {"field": "median", "title": "Median", "format": fmt},
+                                {"field": "q3", "title": "Q3", "format": fmt},
+                            ],
+                        },
                     },
-                },
-                {
-                    "data": {"values": boxes_data},
-                    "mark": {"type": "tick", "color": INK, "size": 16, "thickness": 2},
-                    "encoding": {"x": {"field": "median", "type": "quantitative"}},
-                },
-            ]
-            + ([outliers] if points else []),  # an empty layer has an infinite extent
-        }
+                    {
+                        "data": {"values": boxes_data},
+                        "mark": {"type": "tick", "color": INK, "size": 16, "thickness": 2},
+                        "encoding": {"x": {"field": "median", "type": "quantitative"}},
+                    },
+                ]
+                + ([outliers] if points else []),  # an empty layer has an infinite extent
+            },
+            all_groups,
+        )
     )

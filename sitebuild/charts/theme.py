@@ -3,32 +3,47 @@
 from __future__ import annotations
 
 import copy
+import functools
 import math
+import os
 
-# Okabe & Ito (2008), "Color Universal Design": distinguishable with the common colour-vision
-# deficiencies. Ordered so the first few are far apart.
+# Our group palette, in our own order: crimson, teal, ochre, violet, sky, brown, navy, orange.
+# Chosen so that every two of them, and each against the neutral reference grey, stay at least
+# 10 CIELAB units apart after simulating protanopia, deuteranopia and tritanopia with the
+# matrices of Machado, Oliveira & Fernandes (2009) at full severity (tests/test_theme.py checks
+# this), and at least 29 apart for normal vision. Each has a contrast of 2.5:1 or more on white.
 PALETTE = (
-    "#0072B2",  # blue
-    "#E69F00",  # orange
-    "#009E73",  # bluish green
-    "#CC79A7",  # reddish purple
-    "#56B4E9",  # sky blue
-    "#D55E00",  # vermillion
-    "#F0E442",  # yellow
-    "#000000",  # black
+    "#b8323f",  # crimson
+    "#0f7c80",  # teal
+    "#c98a00",  # ochre
+    "#6a3d9a",  # violet
+    "#3fa6d6",  # sky
+    "#7f3b08",  # dark brown
+    "#1f4e79",  # navy
+    "#e8743b",  # orange
 )
-# Diverging scale for signed values in [-1, 1]: blue (negative) - off-white - orange (positive),
-# built from the Okabe–Ito blue and vermillion so it stays readable with deuteranopia.
-DIVERGING = ("#0b4f7c", "#5b9fcf", "#f4f1ea", "#e8a06a", "#a8470f")
+# A reference (baseline) group is drawn in this neutral grey, outside the palette's cycle.
+REFERENCE_COLOUR = "#8a8f96"
+# Our shape order. Six shapes against eight colours: group i gets colour i mod 8 and shape
+# i mod 6, so the first 24 groups all get a different (colour, shape) pair.
+SHAPES = ("triangle-down", "diamond", "square", "circle", "triangle-up", "triangle-right")
+REFERENCE_SHAPE = "circle"
+# Markers are drawn hollow (an outline), large enough for the shape to be told apart.
+MARKER_SIZE = 70
+MARKER_STROKE = 1.8
+# Diverging scale for signed values in [-1, 1]: navy (negative) - off-white - brown (positive).
+DIVERGING = ("#0b3a5c", "#5b8fc0", "#f4f1ea", "#d99a5b", "#7f3b08")
 INK = "#1d2733"
 MUTED = "#8a94a0"
-GRID = "#e3e6ea"
+GRID = "#e8ebef"
+BAND = "#f3efe6"  # the pale band behind a chart's title in pictures made for slides
 FONT = "system-ui, -apple-system, 'Segoe UI', 'Helvetica Neue', Arial, sans-serif"
+MIN_WIDTH = 280  # px: a chart never gets narrower than this (a phone is 390 px wide)
 
 CONFIG = {
     "background": "#ffffff",
     "font": FONT,
-    "padding": 8,
+    "padding": {"left": 4, "right": 12, "top": 6, "bottom": 4},
     "view": {"stroke": None, "continuousWidth": 520, "continuousHeight": 260},
     "range": {"category": list(PALETTE), "diverging": list(DIVERGING)},
     "axis": {
@@ -38,24 +53,54 @@ CONFIG = {
         "titleFontSize": 12,
         "titleFontWeight": 600,
         "gridColor": GRID,
-        "domainColor": MUTED,
-        "tickColor": MUTED,
-        "titlePadding": 8,
+        "gridDash": [2, 3],
+        "domain": False,
+        "tickColor": GRID,
+        "tickSize": 4,
+        "titlePadding": 10,
+    },
+    # Numbers on a narrow range ("498.8", "499.0") never run into each other: labels that
+    # would touch are left out, and the end labels stay inside the plot.
+    "axisQuantitative": {"labelOverlap": "greedy", "labelSeparation": 8, "labelFlush": True},
+    # Category axes (group names) carry no grid: the marks sit on their own row.
+    "axisBand": {"grid": False, "ticks": False, "labelPadding": 6},
+    "axisX": {"titleAnchor": "end", "titleAlign": "right"},
+    "axisY": {
+        "titleAnchor": "end",
+        "titleAngle": 0,
+        "titleAlign": "left",
+        "titleBaseline": "bottom",
+        "titleY": -8,
+        "titleX": 0,
     },
     "legend": {
         "labelColor": INK,
         "titleColor": INK,
         "labelFontSize": 12,
         "titleFontSize": 12,
-        "orient": "bottom",
+        "titleFontWeight": 600,
+        "orient": "top",
         "direction": "horizontal",
         "columns": 4,
+        "symbolStrokeWidth": MARKER_STROKE,
+        "symbolSize": 90,
+        "labelLimit": 160,
+        "padding": 2,
+        "offset": 24,
     },
-    "title": {"color": INK, "fontSize": 14, "fontWeight": 600, "anchor": "start"},
+    "title": {
+        "color": INK,
+        "fontSize": 15,
+        "fontWeight": 700,
+        "anchor": "start",
+        "subtitleColor": MUTED,
+        "subtitleFontSize": 12,
+        "offset": 10,
+    },
     "header": {"labelColor": INK, "titleColor": INK, "labelFontSize": 12},
     "mark": {"color": PALETTE[0]},
     "bar": {"color": PALETTE[0]},
-    "point": {"filled": True, "size": 40},
+    "point": {"filled": False, "size": MARKER_SIZE, "strokeWidth": MARKER_STROKE},
     "line": {"strokeWidth": 2},
 }
 
@@ -184,9 +229,150 @@ def themed(spec: dict) -> dict:
     return out
 
 
-def group_colour_scale(groups: list[str]) -> dict:
+def group_styles(groups: list[str], reference: str | None = None) -> list[tuple[str, str]]:
+    """Return each group's (colour, shape), in the order given; the reference group is grey.
+
+    Groups other than the reference take palette colour k mod 8 and shape k mod 6 (k counts
+    them in order), so up to 24 groups get 24 different pairs and a group keeps its pair on
+    every chart of a page.
+    """
+    out, k = [], 0
+    for g in groups:
+        if reference is not None and g == reference:
+            out.append((REFERENCE_COLOUR, REFERENCE_SHAPE))
+            continue
+        out.append((PALETTE[k % len(PALETTE)], SHAPES[k % len(SHAPES)]))
+        k += 1
+    return out
+
+
+def group_colour_scale(groups: list[str], reference: str | None = None) -> dict:
     """Return a Vega-Lite scale that gives each group the same colour on every chart."""
+    return {"domain": list(groups), "range": [c for c, _ in group_styles(groups, reference)]}
+
+
+def group_shape_scale(groups: list[str], reference: str | None = None) -> dict:
+    """Return a Vega-Lite scale that gives each group the same shape on every chart."""
+    return {"domain": list(groups), "range": [s for _, s in group_styles(groups, reference)]}
+
+
+def group_encoding(
+    groups: list[str], title: str | None, reference: str | None = None, legend: bool = True
+) -> dict:
+    """Return the colour and shape channels of a group field (one shared legend).
+
+    The legend's title is the group column's name, so it reads as the data does.
+    """
+    shown = {"title": title} if legend else {"legend": None}
     return {
-        "domain": list(groups),
-        "range": [PALETTE[i % len(PALETTE)] for i in range(len(groups))],
+        "color": {
+            "field": "group",
+            "type": "nominal",
+            "scale": group_colour_scale(groups, reference),
+            **shown,
+        },
+        "shape": {
+            "field": "group",
+            "type": "nominal",
+            "scale": group_shape_scale(groups, reference),
+            **shown,
+        },
     }
+
+
+# The page-wide highlight: every chart has a variable parameter "focus" holding the label of
+# the group the reader picked (or null). The page's script sets it in every chart at once; the
+# marks read it only through these tests, so no label is ever written into an expression.
+FOCUS = "focus"
+DIMMED = 0.15
+FEW_OPACITY = 0.6
+
+
+def focus_opacity(few: bool = False, full: float = 1.0) -> dict:
+    """Return an opacity channel: ``full`` for the picked group (or when none is picked),
+    faint for the others; with ``few``, rows flagged ``few`` are drawn at :data:`FEW_OPACITY`."""
+    conditions = [{"test": f"{FOCUS} != null && datum.group !== {FOCUS}", "value": DIMMED}]
+    if few:
+        conditions.append({"test": "datum.few", "value": FEW_OPACITY * full})
+    return {"condition": conditions, "value": full}
+
+
+def with_focus(spec: dict, groups: list[str] | None = None) -> dict:
+    """Return ``spec`` with the page-wide ``focus`` parameter (and its groups in usermeta)."""
+    out = dict(spec)
+    out["params"] = [*spec.get("params", []), {"name": FOCUS, "value": None}]
+    if groups is not None:
+        out["usermeta"] = {**spec.get("usermeta", {}), "groups": list(groups)}
+    return out
+
+
+def edge_arrows(arrows: list[dict], encoding: dict, colour: str = INK) -> list:
+    """Return altair point layers marking intervals cut at the axis' edge: a left-pointing
+    triangle for rows of ``arrows`` with ``shape`` "triangle-left", a right-pointing one for
+    the rest; ``encoding`` adds channels (y, tooltip). One layer per side, and only for a side
+    that has rows (an empty layer makes Vega warn)."""
+    alt = altair()
+    layers = []
+    for shape in ("triangle-left", "triangle-right"):
+        rows = [a for a in arrows if a["shape"] == shape]
+        if rows:
+            layers.append(
+                alt.Chart(alt.Data(values=rows))
+                .mark_point(filled=True, size=60, shape=shape, color=colour)
+                .encode(x=alt.X(field="edge", type="quantitative"), **encoding)
+            )
+    return layers
+
+
+def dimmed_unless_picked(few: bool = False, full: float = 1.0):
+    """Return an altair opacity rule: ``full`` for the picked group (or when none is picked),
+    faint for the others; with ``few``, rows flagged ``few`` at :data:`FEW_OPACITY`."""
+    conditions = [{"test": f"{FOCUS} != null && datum.group !== {FOCUS}", "value": DIMMED}]
+    if few:
+        conditions.append({"test": "datum.few", "value": FEW_OPACITY * full})
+    # A channel object, not alt.when(): that path re-reads the schema (about 60 ms a call).
+    return altair().OpacityValue(condition=conditions, value=full)
+
+
+def dashed_when_few():
+    """Return an altair stroke-dash rule: dashed for rows flagged ``few``, solid otherwise."""
+    return altair().StrokeDashValue(condition={"test": "datum.few", "value": [3, 3]}, value=[1, 0])
+
+
+# Charts are made with altair and turned into Vega-Lite dicts at build time. Altair is imported
+# on first use only (about 1.6 s on an idle machine), so --help, check and a rebuild that
+# draws nothing never pay for it. Checking every spec against the Vega-Lite schema costs about
+# 40 % more per chart (8 ms of 21 ms CPU, benchmarks/chart_build.py): on in the tests
+# (SITEBUILD_CHECK_CHARTS=1), off in builds.
+CHECK_CHARTS_ENV = "SITEBUILD_CHECK_CHARTS"
+
+
+@functools.cache
+def altair():
+    """Return the altair module with our look registered and enabled (once per process)."""
+    import altair as alt
+
+    @alt.theme.register("sitebuild", enable=True)
+    def _look():
+        return {"config": copy.deepcopy(CONFIG)}
+
+    return alt
+
+
+def to_spec(chart, datasets: dict | None = None) -> dict:
+    """Return an altair chart as a themed Vega-Lite dict (see :func:`themed`), with
+    ``datasets`` (name -> records) as its named data.
+
+    The records are added after altair has made the dict: altair copies and walks every value
+    it is given, which for a few thousand points costs more than the rest of the chart.
+    """
+    check = os.environ.get(CHECK_CHARTS_ENV) == "1"
+    spec = chart.to_dict(validate=check)
+    if datasets:
+        spec["datasets"] = {**spec.get("datasets", {}), **datasets}
+    return themed(spec)
+
+
+def focus_param():
+    """Return the page-wide ``focus`` variable parameter as an altair parameter."""
+    return altair().param(name=FOCUS, value=None)

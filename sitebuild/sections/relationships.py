@@ -625,7 +625,22 @@ def charts(dataset: dict, settings) -> list[Chart]:
                     )
                 ),
                 spec=_drawn_on_time(
-                    scatter_with_smooths(scatter, smooths, line, info["groups"]), dataset
+                    scatter_with_smooths(
+                        scatter,
+                        smooths,
+                        line,
+                        info["groups"],
+                        group_by=dataset.get("group_by"),
+                        reference=next(
+                            (
+                                e.get("reference")
+                                for e in dataset.get("comparisons", [])
+                                if e.get("measure") == y
+                            ),
+                            None,
+                        ),
+                    ),
+                    dataset,
                 ),
                 table="rel-lines",
             )

@@ -203,6 +203,12 @@ def _shown_groups(ds: dict, measure: str) -> list[str]:
     return [g for g in ds["groups"] if g in keep]
 
 
+def _reference(ds: dict, measure: str) -> str | None:
+    """The measure's reference group (drawn in a neutral grey), if its comparisons have one."""
+    entry = next((e for e in ds.get("comparisons", []) if e.get("measure") == measure), {})
+    return entry.get("reference")
+
+
 def charts(ds: dict, settings: SiteSettings) -> list[Chart]:
     """Return, per measure, the mean-interval, histogram and box charts."""
     from ..charts import summary as draw
@@ -215,6 +221,7 @@ def charts(ds: dict, settings: SiteSettings) -> list[Chart]:
         rows = [r for r in ds["summaries"] if r["measure"] == measure and r["group"] in shown]
         dist = next(d for d in ds["distributions"] if d["measure"] == measure)
         fmt = draw.value_format(rows)
+        look = {"group_by": ds.get("group_by"), "reference": _reference(ds, measure)}
         out.append(
             Chart(
                 id=f"sum-{mi}-means",
@@ -224,7 +231,7 @@ def charts(ds: dict, settings: SiteSettings) -> list[Chart]:
                     "Overlap is not a test: two intervals can overlap while the groups differ; "
                     "the comparisons below say which differ." + _extremes(rows)
                 ),
-                spec=draw.mean_intervals(rows, ds["groups"], measure),
+                spec=draw.mean_intervals(rows, ds["groups"], measure, **look),
                 table=f"sum-{mi}",
             )
         )
@@ -236,7 +243,7 @@ def charts(ds: dict, settings: SiteSettings) -> list[Chart]:
                     f"Histograms of {measure} per group on shared bins, as the share of each "
                     "group's values, so groups of different sizes compare fairly."
                 ),
-                spec=draw.histograms(dist, shown, ds["groups"], measure, fmt),
+                spec=draw.histograms(dist, shown, ds["groups"], measure, fmt, **look),
                 table=f"sum-{mi}",
             )
         )
@@ -251,7 +258,7 @@ def charts(ds: dict, settings: SiteSettings) -> list[Chart]:
                     "extreme per side and group; the table counts them all)."
                 ),
                 spec=with_limits(
-                    draw.boxes(dist, shown, ds["groups"], measure, fmt),
+                    draw.boxes(dist, shown, ds["groups"], measure, fmt, **look),
                     next((c for c in ds.get("capability", []) if c["measure"] == measure), None),
                 ),
                 table=f"sum-{mi}",

@@ -270,6 +270,13 @@ def page_parts(ds: dict, settings) -> tuple[dict, dict]:
     return charts, tables
 
 
+def _page_meta(spec: dict, ds: dict, built_at) -> dict:
+    """Return ``spec`` with the dataset and build date in its usermeta: the page's script
+    writes them into a downloaded picture and its file name."""
+    meta = {"dataset": ds["name"], "dataset_slug": ds["slug"], "built": built_at}
+    return {**spec, "usermeta": {**spec.get("usermeta", {}), **meta}}
+
+
 def dataset_page(env, common: dict, ds: dict, spec) -> tuple[dict, dict]:
     """Return (page context, CSV files) for one dataset; the context renders dataset.html."""
     ds = display_copy(ds, spec.labels)  # group names instead of codes (results keep codes)
@@ -310,7 +317,11 @@ def dataset_page(env, common: dict, ds: dict, spec) -> tuple[dict, dict]:
         "charts": charts,
         "tables": tables,
         "notes_html": notes_html,
-        "chart_specs": {cid: c.spec for cid, c in charts.items() if c.drawable},
+        "chart_specs": {
+            cid: _page_meta(c.spec, ds, common.get("built_at"))
+            for cid, c in charts.items()
+            if c.drawable
+        },
         "current": f"{ds['slug']}.html",
     }
     return context, csv_files
