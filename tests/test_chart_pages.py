@@ -26,7 +26,7 @@ def _lines_csv(seed: int = 16) -> str:
     rng = np.random.default_rng(seed)
     rows = ["line,fill weight (g),seal force (N),wait (s),order lines"]
     for i, name in enumerate(GROUPS):
-        for _ in range(3 if name == TINY else 30):
+        for _ in range(3 if name == TINY else 25):
             lines = int(rng.integers(1, 8))
             weight = 500 + 0.5 * i + rng.normal(0, 1.5) + 0.3 * lines
             force = 20 + 0.1 * (i % 3) + rng.normal(0, 0.8)

@@ -42,7 +42,14 @@ def raw_and_adjusted(entry: dict, all_groups: list[str]) -> dict:
             "data": {"values": values},
             "height": ROW_HEIGHT * max(1, len(shown)),
             "width": "container",
-            "encoding": {"y": {"field": "group", "type": "nominal", "sort": shown, "title": None}},
+            "encoding": {
+                "y": {
+                    "field": "group",
+                    "type": "nominal",
+                    "scale": {"domain": shown},
+                    "title": None,
+                }
+            },
             "layer": [
                 {
                     "mark": {"type": "rule", "strokeWidth": 2},
