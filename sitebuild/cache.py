@@ -159,24 +159,60 @@ class Cache:
 
     # -- the chart script -----------------------------------------------------------------
     def chart_bundle(self, make) -> bytes:
-        """Return the chart script, from the cache when its vl-convert version matches."""
-        version = vl_convert_version()
-        path = self.root / "assets" / f"vega-bundle-{version}.js"
+        """Return the chart script: the copy kept in the user's own cache folder when its
+        vl-convert version and checksum match, else ``make()`` (and keep that copy).
+
+        The script runs in every reader's browser, so it is never taken from the project
+        folder (whose cache anyone who hands over the folder can edit, checksum and all): only
+        from a folder of the user running the build that no one else can write to.
+        """
+        folder = user_cache_folder()
+        path = folder / f"vega-bundle-{vl_convert_version()}.js"
         check = path.with_suffix(".sha256")
-        if self.enabled:
+        trusted = _private(folder) and _private(path) and _private(check)
+        if self.enabled and trusted:
             try:
                 data = path.read_bytes()
                 if hashlib.sha256(data).hexdigest() == check.read_text().strip():
                     return data
-            except OSError:
+            except (OSError, ValueError):
                 pass
         data = make()
         try:
-            _atomic_write(path, data)
-            _atomic_write(check, hashlib.sha256(data).hexdigest().encode("ascii") + b"\n")
+            folder.mkdir(mode=0o700, parents=True, exist_ok=True)
+            if _private(folder):
+                _atomic_write(path, data)
+                _atomic_write(check, hashlib.sha256(data).hexdigest().encode("ascii") + b"\n")
         except OSError:
-            pass  # the bundle is rebuilt next time; nothing depends on the cache copy
+            pass  # the script is made again next time; nothing depends on the kept copy
         return data
+
+
+def user_cache_folder() -> Path:
+    """Return the user's own sitebuild cache folder (outside every project):
+    ``$SITEBUILD_USER_CACHE``, else ``$XDG_CACHE_HOME/sitebuild``, else ``~/.cache/sitebuild``."""
+    if os.environ.get("SITEBUILD_USER_CACHE"):
+        return Path(os.environ["SITEBUILD_USER_CACHE"])
+    base = os.environ.get("XDG_CACHE_HOME") or os.path.join(os.path.expanduser("~"), ".cache")
+    return Path(base) / "sitebuild"
+
+
+def _private(path: Path) -> bool:
+    """Return True when ``path`` is no link, belongs to this user and only they can write it
+    (also True for a file not there yet, whose folder was checked)."""
+    try:
+        info = os.lstat(path)
+    except FileNotFoundError:
+        return True
+    except OSError:
+        return False
+    import stat
+
+    if stat.S_ISLNK(info.st_mode):
+        return False
+    if hasattr(os, "geteuid") and info.st_uid != os.geteuid():
+        return False
+    return not info.st_mode & 0o022
 
 
 def vl_convert_version() -> str:

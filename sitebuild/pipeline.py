@@ -335,13 +335,15 @@ def layouts_digest(manifest: Manifest) -> str:
     Layouts are named by their place among the layouts, not by absolute path: the same site
     from an installed copy and from a checkout has the same key.
     """
-    from .site.render import layout_files, packaged_layouts
+    from .site.render import PROJECT_STYLE, layout_files, packaged_layouts
 
     digest = hashlib.sha256()
-    roots = {"packaged": packaged_layouts(), "project": manifest.root / "layouts"}
+    packaged = packaged_layouts()
     for path in layout_files(manifest):
-        where, root = next((k, r) for k, r in roots.items() if path.is_relative_to(r))
-        name = f"{where}/{path.relative_to(root).as_posix()}"
+        if path.is_relative_to(packaged):
+            name = f"packaged/{path.relative_to(packaged).as_posix()}"
+        else:
+            name = f"project/{PROJECT_STYLE}"
         digest.update(name.encode("utf-8") + b"\0" + file_digest(path).encode("ascii"))
     return digest.hexdigest()
 
@@ -505,6 +507,9 @@ def build(
             reports.append(_dataset_report(table))
         computed = {"tool_version": __version__, "site": site_block(manifest), "datasets": datasets}
         notices += summarised_notices(datasets)
+        from .site.render import ignored_layouts
+
+        notices += ignored_layouts(manifest)
         previous, notice = previous_results(target)
         if notice:
             notices.append(notice)

@@ -15,7 +15,7 @@ from .manifest import MANIFEST_NAME, load_manifest
 
 
 def watched_files(project: str | Path) -> list[Path]:
-    """Return the files a build reads: the manifest, data, notes and the project's layouts.
+    """Return the files a build reads: the manifest, data, notes and the project's style sheet.
 
     When the manifest cannot be read, only the manifest is watched (fixing it rebuilds).
     """
@@ -31,9 +31,8 @@ def watched_files(project: str | Path) -> list[Path]:
         paths.append(spec.path)
         if spec.notes_path is not None:
             paths.append(spec.notes_path)
-    layouts = root / "layouts"
-    if layouts.is_dir():
-        paths += sorted(p for p in layouts.rglob("*") if p.is_file())
+    # The one project layout a build reads (templates and scripts are never used).
+    paths.append(root / "layouts" / "style.css")
     return paths
 
 

@@ -157,13 +157,17 @@ def sanitise_notes(text: str) -> str:
     )
 
 
-def environment(project_layouts: Path | None = None):
-    """Return the jinja2 environment: autoescape on, project layouts override packaged ones."""
+def environment():
+    """Return the jinja2 environment over the packaged layouts only, autoescape on.
+
+    A project folder never supplies templates: a template is code (jinja2 can reach Python
+    objects from one), and building someone else's project must never run their code. The one
+    thing a project may restyle is ``layouts/style.css`` (see :func:`asset_bytes`).
+    """
     import jinja2
 
-    paths = [str(p) for p in (project_layouts, packaged_layouts()) if p and p.is_dir()]
     env = jinja2.Environment(
-        loader=jinja2.FileSystemLoader(paths),
+        loader=jinja2.FileSystemLoader([str(packaged_layouts())]),
         autoescape=True,
         undefined=jinja2.StrictUndefined,
         keep_trailing_newline=True,
@@ -330,7 +334,7 @@ def render_site(
     """
     from ..results import dumps, schema  # numpy comes with it: keep it off the no-op path
 
-    env = environment(manifest.root / "layouts")
+    env = environment()
     files: dict[str, bytes] = {}
     common = common_context(results, manifest)
     for ds, spec in zip(results["datasets"], manifest.datasets, strict=True):
@@ -381,17 +385,57 @@ def render_site(
     return files
 
 
+# The only project file a render reads besides data and notes: a style sheet is not code, and
+# the pages' Content-Security-Policy keeps it from loading anything.
+PROJECT_STYLE = "layouts/style.css"
+
+
+def project_style(manifest: Manifest) -> Path | None:
+    """Return the project's ``layouts/style.css`` when it is a regular file inside the project
+    folder (a link leading out of it is ignored, like a data file would be refused)."""
+    path = manifest.root / PROJECT_STYLE
+    try:
+        resolved = path.resolve()
+        resolved.relative_to(manifest.root.resolve())
+    except (OSError, ValueError):
+        return None
+    return resolved if resolved.is_file() else None
+
+
 def asset_bytes(manifest: Manifest, asset: str) -> bytes:
-    """Return a packaged asset (style.css, site.js), or the project's override of it."""
-    override = manifest.root / "layouts" / asset
-    source = override if override.is_file() else packaged_layouts() / asset
-    return source.read_bytes()
+    """Return a packaged asset (style.css, site.js); style.css may come from the project.
+
+    Never a project script: ``site.js`` always comes from the installed package.
+    """
+    if asset == "style.css" and (own := project_style(manifest)) is not None:
+        return own.read_bytes()
+    return (packaged_layouts() / asset).read_bytes()
+
+
+def ignored_layouts(manifest: Manifest) -> list[str]:
+    """Return a notice naming the project's layout files other than ``style.css``, which are
+    never used (templates and scripts from a project folder are code), or an empty list."""
+    folder = manifest.root / "layouts"
+    if not folder.is_dir():
+        return []
+    names = sorted(
+        p.relative_to(manifest.root).as_posix()
+        for p in folder.rglob("*")
+        if (p.is_file() or p.is_symlink())
+        and p.relative_to(manifest.root).as_posix() != PROJECT_STYLE
+    )
+    if not names:
+        return []
+    shown = ", ".join(names[:5]) + (f" and {len(names) - 5} more" if len(names) > 5 else "")
+    return [
+        f"ignored {shown}: a project may restyle its pages with layouts/style.css only; "
+        "templates and scripts from a project folder are never used, as they could run code"
+    ]
 
 
 def layout_files(manifest: Manifest) -> list[Path]:
-    """Return every layout file a render may read: packaged ones and the project's overrides."""
-    found = []
-    for folder in (packaged_layouts(), manifest.root / "layouts"):
-        if folder.is_dir():
-            found += sorted(p for p in folder.rglob("*") if p.is_file())
-    return found
+    """Return every layout file a render may read: the packaged ones and the project's
+    style sheet."""
+    found = sorted(p for p in packaged_layouts().rglob("*") if p.is_file())
+    own = project_style(manifest)
+    return found + ([own] if own is not None else [])

@@ -1,0 +1,108 @@
+"""Round two of the hostile and careless inputs: a project folder never runs code, output paths
+never escape, downloads never carry formulas, and odd bytes are read as they are meant.
+
+Each test names the promise it holds (see README "What the tool trusts").
+"""
+
+from __future__ import annotations
+
+import hashlib
+import os
+from pathlib import Path
+
+import pytest
+
+import sitebuild
+from sitebuild.cli import main
+from sitebuild.site.render import packaged_layouts
+
+from conftest import snapshot, write_project
+
+MANIFEST = """
+[site]
+title = "Round two"
+
+[[datasets]]
+name = "Lines"
+file = "data/d.csv"
+group = "g"
+measures = ["v", "w"]
+"""
+GOOD_CSV = "g,v,w\nA,1,2\nA,2,3\nA,3,5\nB,3,4\nB,4,5\nB,6,6\n"
+
+
+@pytest.fixture
+def proj(tmp_path) -> Path:
+    return write_project(tmp_path / "p", MANIFEST, {"data/d.csv": GOOD_CSV})
+
+
+def run(args: list[str], capsys) -> tuple[int, str, str]:
+    code = main(args)
+    captured = capsys.readouterr()
+    assert "Traceback" not in captured.err
+    return code, captured.out, captured.err
+
+
+# -- 1. project files never run code ----------------------------------------------------------
+
+
+def test_a_project_template_is_never_rendered(proj, tmp_path):
+    proof = tmp_path / "ran"
+    payload = (
+        f"{{{{ self.__init__.__globals__.__builtins__.__import__('os').system('touch {proof}') }}}}"
+    )
+    for name in ("dataset.html", "base.html", "index.html", "macros.html"):
+        write_project(proj, MANIFEST, {f"layouts/{name}": payload})
+    report = sitebuild.build(proj, out=tmp_path / "site", quiet=True)
+    assert not proof.exists(), "a project template ran a shell command"
+    assert any("ignored layouts/base.html" in n for n in report.notices), report.notices
+    page = (tmp_path / "site" / "lines.html").read_text(encoding="utf-8")
+    assert "__globals__" not in page
+
+
+def test_a_project_script_never_ships(proj, tmp_path):
+    write_project(proj, MANIFEST, {"layouts/site.js": "window.__pwned = 1;"})
+    sitebuild.build(proj, out=tmp_path / "site", quiet=True)
+    shipped = (tmp_path / "site" / "assets" / "site.js").read_bytes()
+    assert shipped == (packaged_layouts() / "site.js").read_bytes()
+    single = tmp_path / "one.html"
+    sitebuild.build(proj, out=tmp_path / "site", quiet=True, single_file=single)
+    assert b"__pwned" not in single.read_bytes()
+
+
+def test_a_forged_chart_script_in_the_project_cache_never_ships(proj, tmp_path, monkeypatch):
+    from sitebuild.cache import vl_convert_version
+
+    forged = b"window.__pwned = 1;"
+    assets = proj / ".sitebuild_cache" / "assets"
+    assets.mkdir(parents=True)
+    js = assets / f"vega-bundle-{vl_convert_version()}.js"
+    js.write_bytes(forged)
+    js.with_suffix(".sha256").write_text(hashlib.sha256(forged).hexdigest() + "\n")
+    sitebuild.build(proj, out=tmp_path / "site", quiet=True)
+    assert b"__pwned" not in (tmp_path / "site" / "assets" / "vega-bundle.js").read_bytes()
+
+
+def test_a_chart_script_kept_where_others_can_write_is_not_trusted(proj, tmp_path, monkeypatch):
+    from sitebuild.cache import Cache, vl_convert_version
+
+    user = tmp_path / "user"
+    monkeypatch.setenv("SITEBUILD_USER_CACHE", str(user))
+    Cache(tmp_path / "c").chart_bundle(lambda: b"good")
+    js = user / f"vega-bundle-{vl_convert_version()}.js"
+    js.write_bytes(b"evil")
+    js.with_suffix(".sha256").write_text(hashlib.sha256(b"evil").hexdigest() + "\n")
+    os.chmod(js, 0o666)
+    assert Cache(tmp_path / "c").chart_bundle(lambda: b"made again") == b"made again"
+
+
+def test_the_project_style_sheet_is_used_but_not_through_a_link_out(proj, tmp_path):
+    write_project(proj, MANIFEST, {"layouts/style.css": "body { color: teal; }\n"})
+    sitebuild.build(proj, out=tmp_path / "site", quiet=True)
+    assert (tmp_path / "site/assets/style.css").read_text() == "body { color: teal; }\n"
+    secret = tmp_path / "secret.txt"
+    secret.write_text("password=hunter2")
+    (proj / "layouts/style.css").unlink()
+    (proj / "layouts/style.css").symlink_to(secret)
+    sitebuild.build(proj, out=tmp_path / "site", quiet=True)
+    assert b"hunter2" not in snapshot(tmp_path / "site")["assets/style.css"]
