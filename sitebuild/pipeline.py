@@ -250,7 +250,7 @@ def check(project: str | Path, out: str | Path | None = None) -> CheckReport:
 
     manifest = load_manifest(project)
     target = resolve_out(manifest, out)
-    check_target(target, manifest)
+    check_target(target, manifest, from_manifest=out is None)
     reports = tuple(_dataset_report(read_table(spec)) for spec in manifest.datasets)
     return CheckReport(manifest=manifest.path, out=target, datasets=reports)
 
@@ -453,7 +453,7 @@ def build(
     timer = Timer()
     manifest = load_manifest(project)
     target = resolve_out(manifest, out)
-    publish.check_target(target, manifest)
+    publish.check_target(target, manifest, from_manifest=out is None)
     zip_path = publish.check_extra_path(Path(zip), target, manifest, "zip") if zip else None
     single_path = (
         publish.check_extra_path(Path(single_file), target, manifest, "single file")
@@ -552,6 +552,9 @@ def build(
                 bundle = cache.chart_bundle(render.chart_bundle)
                 memo = PageMemo(cache, manifest, results, checksums)
                 files = render.render_site(results, manifest, bundle=bundle, pages=memo)
+                if publish.outside_project(target, manifest):
+                    # Names the project, so its manifest may write here again (check_target).
+                    files[render.MARKER] += (publish.marker_line(manifest) + "\n").encode()
                 if say and memo.reused:
                     say(f"pages reused unchanged: {', '.join(memo.reused)}")
                 unchanged = publish.same_as_disk(files, target)

@@ -106,3 +106,53 @@ def test_the_project_style_sheet_is_used_but_not_through_a_link_out(proj, tmp_pa
     (proj / "layouts/style.css").symlink_to(secret)
     sitebuild.build(proj, out=tmp_path / "site", quiet=True)
     assert b"hunter2" not in snapshot(tmp_path / "site")["assets/style.css"]
+
+
+# -- 2. output paths never escape -------------------------------------------------------------
+
+
+def other_site(tmp_path) -> tuple[Path, dict]:
+    """Another project's site, with its history, outside the project under test."""
+    other = write_project(tmp_path / "other", MANIFEST, {"data/d.csv": GOOD_CSV})
+    out = tmp_path / "other-site"
+    sitebuild.build(other, out=out, quiet=True)
+    return out, snapshot(out)
+
+
+@pytest.mark.parametrize("how", ["relative", "absolute"])
+def test_manifest_output_cannot_replace_another_projects_site(proj, tmp_path, capsys, how):
+    out, before = other_site(tmp_path)
+    where = "../other-site" if how == "relative" else str(out)
+    (proj / "manifest.toml").write_text(
+        MANIFEST.replace('title = "Round two"', f'title = "Round two"\noutput = "{where}"')
+    )
+    code, _, err = run(["build", str(proj), "--quiet"], capsys)
+    assert code == 2 and "'output'" in err and "outside the project" in err, err
+    assert snapshot(out) == before
+    code, _, err = run(["check", str(proj)], capsys)
+    assert code == 2 and "'output'" in err
+
+
+def test_manifest_output_outside_may_be_new_then_rebuilt_by_its_own_project(proj, tmp_path):
+    (proj / "manifest.toml").write_text(
+        MANIFEST.replace('title = "Round two"', 'title = "Round two"\noutput = "../mine"')
+    )
+    sitebuild.build(proj, quiet=True)
+    (proj / "data/d.csv").write_text(GOOD_CSV + "C,1,1\nC,2,2\n")
+    report = sitebuild.build(proj, quiet=True)
+    assert report.written and (tmp_path / "mine" / "index.html").is_file()
+    # The site's marker names the project by a digest, never by its path.
+    marker = (tmp_path / "mine" / ".sitebuild-site").read_text()
+    assert "project " in marker and str(tmp_path) not in marker
+
+
+@pytest.mark.parametrize("flag", ["--zip", "--single-file"])
+def test_extra_outputs_never_overwrite_a_project_file(proj, tmp_path, capsys, flag):
+    write_project(proj, MANIFEST, {"layouts/site.js": "keep me", "layouts/style.css": "b{}"})
+    for victim in ("layouts/site.js", "layouts/style.css", "manifest.toml", "data/d.csv"):
+        before = (proj / victim).read_bytes()
+        code, _, err = run(
+            ["build", str(proj), "--out", str(tmp_path / "s"), flag, str(proj / victim)], capsys
+        )
+        assert code == 2 and "input of the project" in err, err
+        assert (proj / victim).read_bytes() == before

@@ -35,18 +35,58 @@ def _is_relative_to(path: Path, parent: Path) -> bool:
     return True
 
 
-def check_target(out: Path, manifest: Manifest) -> None:
-    """Refuse an output folder that could hold anything but a previous site of ours."""
+def project_id(manifest: Manifest) -> str:
+    """Return the identity a site written outside its project records in its marker file: a
+    SHA-256 of the project folder's absolute path (the path itself never enters the site)."""
+    return hashlib.sha256(str(manifest.root.resolve()).encode("utf-8")).hexdigest()
+
+
+def marker_line(manifest: Manifest) -> str:
+    """Return the marker file's line naming the project a site belongs to."""
+    return f"project {project_id(manifest)}"
+
+
+def outside_project(out: Path, manifest: Manifest) -> bool:
+    """Return True when the output folder lies outside the project folder."""
+    return not _is_relative_to(out.resolve(), manifest.root.resolve())
+
+
+def _site_of_this_project(out: Path, manifest: Manifest) -> bool:
+    try:
+        text = (out / MARKER).read_text(encoding="utf-8", errors="replace")
+    except OSError:
+        return False
+    return marker_line(manifest) in text.splitlines()
+
+
+def check_target(out: Path, manifest: Manifest, from_manifest: bool = False) -> None:
+    """Refuse an output folder that could hold anything but a previous site of ours.
+
+    ``from_manifest``: the folder comes from the manifest's ``output`` key, which is as
+    untrusted as the rest of the project folder. Outside the project it must then be new,
+    empty, or a site this very project wrote (its marker names the project), so a manifest
+    handed over with ``output = "../elsewhere"`` cannot replace another site.
+    """
     out = out.resolve()
     root = manifest.root.resolve()
+    if (
+        from_manifest
+        and outside_project(out, manifest)
+        and out.exists()
+        and not (out.is_dir() and not any(out.iterdir()))
+        and not _site_of_this_project(out, manifest)
+    ):
+        raise SitebuildError(
+            f"{out}: the manifest's output (key 'output' in [site]) lies outside the project "
+            "folder and holds something other than a site of this project; choose a folder "
+            "inside the project, or name this one with --out if you mean it (nothing was changed)."
+        )
     if out == root or _is_relative_to(root, out):
         raise SitebuildError(
             f"{out}: the output folder would contain the project folder itself; choose a "
             "separate folder with --out."
         )
-    inputs = [manifest.path] + [d.path for d in manifest.datasets]
-    inputs += [d.notes_path for d in manifest.datasets if d.notes_path]
-    for item in inputs:
+    for item in project_inputs(manifest):
         if _is_relative_to(item.resolve(), out):
             raise SitebuildError(
                 f"{out}: the output folder holds the input file {item.name}; choose a folder "
@@ -279,6 +319,17 @@ class _no_lock:
         return False
 
 
+def project_inputs(manifest: Manifest) -> list[Path]:
+    """Return the project's files a build may read or a person edits: the manifest, data,
+    notes, and everything in its ``layouts/`` folder (never to be written over)."""
+    inputs = [manifest.path] + [d.path for d in manifest.datasets]
+    inputs += [d.notes_path for d in manifest.datasets if d.notes_path]
+    layouts = manifest.root / "layouts"
+    if layouts.is_dir():
+        inputs += sorted(p for p in layouts.rglob("*") if p.is_file() or p.is_symlink())
+    return inputs
+
+
 def check_extra_path(path: Path, out: Path, manifest: Manifest, what: str) -> Path:
     """Refuse a --zip or --single-file path inside the site, the cache, or on an input file."""
     path = path.expanduser().resolve()
@@ -293,8 +344,7 @@ def check_extra_path(path: Path, out: Path, manifest: Manifest, what: str) -> Pa
         raise SitebuildError(
             f"{path}: the {what} would sit inside the build cache; give {flag} another path."
         )
-    inputs = [manifest.path] + [d.path for d in manifest.datasets]
-    inputs += [d.notes_path for d in manifest.datasets if d.notes_path]
+    inputs = project_inputs(manifest)
     if any(path == item.resolve() for item in inputs):
         raise SitebuildError(
             f"{path}: that is an input of the project; give {flag} a new file name."
