@@ -552,9 +552,9 @@ def build(
                 bundle = cache.chart_bundle(render.chart_bundle)
                 memo = PageMemo(cache, manifest, results, checksums)
                 files = render.render_site(results, manifest, bundle=bundle, pages=memo)
-                if publish.outside_project(target, manifest):
-                    # Names the project, so its manifest may write here again (check_target).
-                    files[render.MARKER] += (publish.marker_line(manifest) + "\n").encode()
+                # Names the project, so its manifest's output may write here again even when
+                # it lies outside the project (see publish.check_target).
+                files[render.MARKER] += (publish.marker_line(manifest) + "\n").encode()
                 if say and memo.reused:
                     say(f"pages reused unchanged: {', '.join(memo.reused)}")
                 unchanged = publish.same_as_disk(files, target)
