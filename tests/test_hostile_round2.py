@@ -156,3 +156,49 @@ def test_extra_outputs_never_overwrite_a_project_file(proj, tmp_path, capsys, fl
         )
         assert code == 2 and "input of the project" in err, err
         assert (proj / victim).read_bytes() == before
+
+
+# -- 3. CSV downloads: RFC 4180, no formula survives -------------------------------------------
+
+HOSTILE_LABELS = [
+    "x\r=1+1",  # a bare CR inside a label must not split the row
+    "\t=2+2",
+    "\r=3+3",
+    " =4+4",
+    "\uff1d5+5",  # full-width equals sign
+    "\uff0bA1",  # full-width plus
+    "\uff20SUM(A1)",  # full-width at sign
+    "-A1",
+    "-20 °C",  # a reading with a unit: a spreadsheet shows it as text, keep it as is
+]
+
+
+def test_csv_downloads_are_rfc4180_and_guard_every_formula(tmp_path):
+    import csv
+    import io
+
+    rows = ["g,v,w"]
+    for i, label in enumerate(HOSTILE_LABELS):
+        quoted = '"' + label.replace('"', '""') + '"'
+        rows += [f"{quoted},{i + 1},{i % 3}", f"{quoted},{i + 2},{i % 4}"]
+    data = ("\n".join(rows) + "\n").encode("utf-8")
+    root = write_project(tmp_path / "p", MANIFEST, {"data/d.csv": data})
+    sitebuild.build(root, out=tmp_path / "site", quiet=True)
+    table = next((tmp_path / "site" / "tables").glob("lines-sum-*.csv"))
+    raw = table.read_bytes().decode("utf-8-sig")
+    # RFC 4180: every record ends in CRLF; a CR or LF inside a field is quoted.
+    assert raw.endswith("\r\n") and "\n" not in raw.replace("\r\n", "")
+    records = list(csv.reader(io.StringIO(raw, newline="")))
+    width = len(records[0])
+    assert all(len(r) == width for r in records), "a row was split"
+    labels = {r[records[0].index(next(h for h in records[0] if h))] for r in records[1:]}
+    for label in HOSTILE_LABELS:
+        if label in ("-20 °C", "x\r=1+1"):  # kept whole: the CR is inside a quoted field
+            assert label in labels, (label, labels)
+        else:
+            assert "'" + label in labels, (label, labels)
+    # No cell a spreadsheet would evaluate: each one, after the guard, starts with a quote.
+    for record in records[1:]:
+        for cell in record:
+            folded = __import__("unicodedata").normalize("NFKC", cell).lstrip()
+            assert not folded.startswith(("=", "@")), cell

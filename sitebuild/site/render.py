@@ -198,9 +198,11 @@ def chart_bundle() -> bytes:
 
 
 def _csv(table) -> bytes:
+    """Return a table as RFC 4180 CSV (CRLF line ends; a field holding a CR, LF, quote or comma
+    is quoted), UTF-8 with a BOM, every text cell passed through :func:`_csv_cell`."""
     buffer = io.StringIO()
-    writer = csv.writer(buffer, lineterminator="\n")
-    writer.writerow([heading for _, heading in table.columns])
+    writer = csv.writer(buffer, lineterminator="\r\n", quoting=csv.QUOTE_MINIMAL)
+    writer.writerow([_csv_cell(heading) for _, heading in table.columns])
     for row in table.rows:
         writer.writerow(
             ["" if row.get(key) is None else _csv_cell(row.get(key)) for key, _ in table.columns]
@@ -209,14 +211,40 @@ def _csv(table) -> bytes:
     return ("\ufeff" + buffer.getvalue()).encode("utf-8")
 
 
+# Characters that make a cell starting with '+' or '-' an expression rather than a signed
+# number with a unit ("-20 °C", "+5 %" stay as they are; "-A1", "+1+1", "-2*cmd|..." do not).
+_SIGNED_WITH_UNIT = re.compile(r"[+-]\d[\d.,]*(\s+[^=+\-*/^&(),;:!|@\"'<>{}\[\]]*)?")
+
+
 def _csv_cell(value):
+    """Return a cell for a CSV download: floats in full precision; text a spreadsheet would
+    evaluate as a formula gets a leading ``'`` so it stays text.
+
+    A formula is text starting (after leading white space, and with full-width forms folded
+    by NFKC) with ``=``, ``@``, or ``+``/``-`` followed by anything but a number and a unit;
+    text starting with a TAB or CR is guarded too (common practice for CSV injection).
+    """
     if isinstance(value, float):
         return repr(value)
     text = str(value)
-    # Spreadsheets run cells starting with these as formulas; a leading quote keeps them text.
-    if text[:1] in ("=", "+", "-", "@") and not _looks_numeric(text):
+    if needs_formula_guard(text):
         return "'" + text
     return text
+
+
+def needs_formula_guard(text: str) -> bool:
+    """Return True when a spreadsheet opening this cell could evaluate it as a formula."""
+    import unicodedata
+
+    if text[:1] in ("\t", "\r"):
+        return True
+    folded = unicodedata.normalize("NFKC", text).lstrip()
+    first = folded[:1]
+    if first in ("=", "@"):
+        return True
+    if first in ("+", "-"):
+        return not (_looks_numeric(folded) or _SIGNED_WITH_UNIT.fullmatch(folded))
+    return False
 
 
 def _looks_numeric(text: str) -> bool:
