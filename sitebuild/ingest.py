@@ -162,16 +162,38 @@ def _decode_head(path: Path, raw: bytes) -> tuple[str, str, list[str]]:
     )
 
 
+LINE_END = re.compile(r"\r\n|\r|\n")
+
+
+def split_lines(text: str) -> list[str]:
+    """Return the lines of ``text`` split at CR, LF or CRLF only (never at U+0085, U+2028 or a
+    form feed, which are data in a CSV file: a Windows-1252 '…' read as Latin-1 is U+0085).
+
+    Examples
+    --------
+    >>> split_lines("a,b\rc\x85d,e\r\nf\n")
+    ['a,b', 'c\x85d,e', 'f']
+    """
+    lines = LINE_END.split(text)
+    if lines and lines[-1] == "":
+        lines.pop()
+    return lines
+
+
 def sniff_delimiter(head: str, suffix: str) -> str:
     """Return the delimiter (comma, semicolon, tab, pipe) that splits the head most consistently."""
-    lines = [line for line in head.splitlines()[:50] if line.strip()]
+    # A line's first 64 KB say enough about its delimiter (a header may be far longer).
+    lines = [line[:HEAD_BYTES] for line in split_lines(head)[:50] if line.strip()]
     if not lines:
         return "\t" if suffix == ".tsv" else ","
-    if len(lines) > 1 and not head.endswith("\n"):
+    if len(lines) > 1 and not head.endswith(("\n", "\r")):
         lines = lines[:-1]  # the last line may be cut short by the head's end
     best, best_score = None, (0, 0)
     for delimiter in DELIMITERS:
-        rows = list(csv.reader(io.StringIO("\n".join(lines)), delimiter=delimiter))
+        try:
+            rows = list(csv.reader(io.StringIO("\n".join(lines)), delimiter=delimiter))
+        except csv.Error:  # a field past the csv module's limit: not this delimiter's shape
+            continue
         counts = [len(r) for r in rows]
         if not counts or counts[0] < 2:
             continue
@@ -191,11 +213,19 @@ def _needed(spec: DatasetSpec) -> list[str]:
     return names
 
 
+def _short(text: str, limit: int = 60) -> str:
+    """Return ``text`` cut to ``limit`` characters with '…' when longer (for messages)."""
+    return text if len(text) <= limit else text[: limit - 1] + "…"
+
+
 def _check_columns(spec: DatasetSpec, header: list[str]) -> None:
     seen: dict[str, int] = {}
     for name in header:
         seen[name] = seen.get(name, 0) + 1
-    available = ", ".join(f"'{h}'" for h in header[:40]) + (" ..." if len(header) > 40 else "")
+    # Never the whole header: a file may have a million columns or names a megabyte long.
+    available = ", ".join(f"'{_short(h)}'" for h in header[:40])
+    if len(header) > 40:
+        available += f" and {len(header) - 40:,} more"
     for role, name in [
         ("group", spec.group),
         *(("measures", m) for m in spec.measures),
@@ -295,35 +325,71 @@ def group_codes(raw, order: tuple[str, ...] = ()) -> tuple[np.ndarray, tuple[str
 
 
 HEAD_BYTES = 65536  # bytes read to decode, sniff and find the header of a text file
+MAX_HEADER_BYTES = 64 << 20  # a header line longer than this is refused, not read on
 
 
 @dataclass(frozen=True)
 class Head:
     """The start of a delimited text file: how to read it and its header."""
 
-    text: str  # the decoded first HEAD_BYTES bytes
+    text: str  # the decoded first HEAD_BYTES bytes (more when the header line is longer)
     whole: bool  # the text is the whole file
     encoding: str
     delimiter: str
     header: list[str]
     warnings: list[str]
+    body: bool = False  # something other than blank lines follows the header line
+
+
+def _head_bytes(spec: DatasetSpec, path: Path) -> tuple[bytes, bool]:
+    """Return (the file's first HEAD_BYTES bytes, or up to the end of its first line when that
+    is longer; True when that is the whole file)."""
+    with open(path, "rb") as handle:
+        data = handle.read(HEAD_BYTES)
+        whole = len(data) < HEAD_BYTES
+        while not whole and b"\n" not in data and b"\r" not in data:
+            more = handle.read(HEAD_BYTES)
+            whole = len(more) < HEAD_BYTES
+            data += more
+            if len(data) > MAX_HEADER_BYTES:
+                raise SitebuildError(
+                    f"{spec.file}: the first line is longer than {MAX_HEADER_BYTES >> 20} MB "
+                    "without a line end; check that this is a delimited text file with a header "
+                    "row."
+                )
+    return data, whole
 
 
 def read_head(spec: DatasetSpec, path: Path, suffix: str) -> Head:
     """Decode the start of a text file, sniff its delimiter and check its header's columns
-    (shared by the in-memory reader and the stream engine)."""
-    with open(path, "rb") as handle:
-        head_bytes = handle.read(HEAD_BYTES)
+    (shared by the in-memory reader and the stream engine). Lines end at CR, LF or CRLF."""
+    head_bytes, whole = _head_bytes(spec, path)
     encoding, text, warnings = _decode_head(path, head_bytes)
     delimiter = sniff_delimiter(text, suffix)
-    first = text.splitlines()[0] if text.splitlines() else ""
-    header = next(csv.reader([first], delimiter=delimiter), [])
+    lines = split_lines(text)
+    first = lines[0] if lines else ""
+    try:
+        header = next(csv.reader([first], delimiter=delimiter), [])
+    except csv.Error as exc:
+        raise SitebuildError(
+            f"{spec.file}: the header line could not be split into column names ({exc}); "
+            "check that the first line names the columns."
+        ) from None
     if not any(h.strip() for h in header):
         raise SitebuildError(
             f"{spec.file}: the first line is empty; the first line must name the columns."
         )
     _check_columns(spec, header)
-    return Head(text, len(head_bytes) < HEAD_BYTES, encoding, delimiter, header, warnings)
+    body = any(line.strip() for line in lines[1:3])
+    return Head(text, whole, encoding, delimiter, header, warnings, body)
+
+
+def no_rows_error(spec: DatasetSpec) -> SitebuildError:
+    """Return the error for a text file with lines after its header that gave no rows."""
+    return SitebuildError(
+        f"{spec.file}: the lines after the header gave no rows; check the line ends and the "
+        "delimiter (export the data again as CSV if in doubt)."
+    )
 
 
 def check_label_lengths(spec: DatasetSpec, groups: tuple[str, ...]) -> None:
@@ -437,6 +503,8 @@ def read_frame(spec: DatasetSpec):
         raise SitebuildError(
             f"{spec.file}: the file has no columns; export it again with a header row."
         ) from None
+    if len(frame) == 0 and head.body:
+        raise no_rows_error(spec)
     frame.columns = header if every_column else [header[p] for p in sorted(positions)]
     extra = None if every_column else first_overlong_line(path, delimiter, len(header))
     if extra is not None:
@@ -479,7 +547,45 @@ def _unclosed_quote_line(path: Path) -> int:
     """Return the line of the quote that opens a field never closed (the file's last quote
     byte, as their count is odd: "" inside a field counts twice)."""
     data = path.read_bytes()
-    return data.count(b"\n", 0, data.rfind(b'"')) + 1
+    return _line_of(data, data.rfind(b'"'))
+
+
+def _line_of(data: bytes, position: int) -> int:
+    """Return the 1-based line of byte ``position``, lines ending at CR, LF or CRLF."""
+    before = data[:position]
+    return before.count(b"\n") + before.count(b"\r") - before.count(b"\r\n") + 1
+
+
+def quotes_outside(raw: np.ndarray, delimiter: str) -> np.ndarray | None:
+    """Return a mask of the bytes outside quoted fields, or None when a quote sits where the
+    vectorised rule cannot place it (the caller then reads the file with a real parser).
+
+    The rule: an odd number of quote bytes before a position means it is inside quotes (""
+    toggles twice, staying put). It holds only when every quote opens a field (at a line
+    start or after a delimiter) or closes one (before a delimiter, a line end, the file's end
+    or the next quote of a "" pair). A stray quote in an unquoted field, an inch mark in
+    ``5"`` say, is data to a CSV reader, and would flip the parity for the rest of the file.
+    """
+    is_quote = raw == 34
+    where = np.flatnonzero(is_quote)
+    if not where.size:
+        return np.ones(raw.size, dtype=bool)
+    # uint8 sums wrap at 256, which keeps the parity and an eighth of the memory.
+    inside_after = (np.cumsum(is_quote, dtype=np.uint8) & 1).astype(bool)
+    opening = inside_after[where]  # this quote leaves us inside: it opens a field
+    separators = np.array([ord(delimiter), 10, 13], dtype=np.uint8)
+    previous = np.where(where > 0, raw[np.maximum(where - 1, 0)], 10)
+    following = np.where(where + 1 < raw.size, raw[np.minimum(where + 1, raw.size - 1)], 10)
+    # An opening quote right after a closing one is the second half of a "" pair.
+    after_close = np.zeros(where.size, dtype=bool)
+    after_close[1:] = (where[1:] == where[:-1] + 1) & ~opening[:-1]
+    start = np.isin(previous, separators) | (where == 0) | after_close
+    if raw[:3].tobytes() == b"\xef\xbb\xbf":
+        start |= where == 3  # a quoted first name right after a UTF-8 byte-order mark
+    end = np.isin(following, separators) | (following == 34) | (where + 1 == raw.size)
+    if not (np.all(start[opening]) and np.all(end[~opening])):
+        return None
+    return ~inside_after | is_quote
 
 
 def first_overlong_line(path: Path, delimiter: str, fields: int) -> int | None:
@@ -487,22 +593,20 @@ def first_overlong_line(path: Path, delimiter: str, fields: int) -> int | None:
 
     pandas' reader, when asked for some columns only, drops extra fields without a word, so
     they are counted here, vectorised over the bytes: a line's fields are its delimiters
-    outside quotes plus one. The delimiter, quote and line end are ASCII, so UTF-8 and
-    Latin-1 text cannot hide them.
+    outside quotes plus one. The delimiter, quote and line ends (CR, LF, CRLF) are ASCII, so
+    UTF-8 and Latin-1 text cannot hide them. Quotes the vectorised rule cannot place (see
+    :func:`quotes_outside`) send the file through the csv module instead.
     """
-    import numpy as np
-
     data = path.read_bytes()
     raw = np.frombuffer(data, dtype=np.uint8)
-    delimiters = raw == ord(delimiter)
-    newlines = raw == 10
-    if b'"' in data:
-        # Inside quotes (RFC 4180) a delimiter or line end is data: an odd number of quote
-        # bytes before a position means it is inside quotes ("" toggles twice, staying put).
-        # uint8 sums wrap at 256, which keeps the parity and an eighth of the memory.
-        outside = (np.cumsum(raw == 34, dtype=np.uint8) & 1) == 0
-        delimiters &= outside
-        newlines &= outside
+    outside = quotes_outside(raw, delimiter)
+    if outside is None:
+        return _overlong_by_parser(data, delimiter, fields)
+    delimiters = (raw == ord(delimiter)) & outside
+    carriage = raw == 13
+    next_is_lf = np.zeros(raw.size, dtype=bool)
+    next_is_lf[:-1] = raw[1:] == 10
+    newlines = ((raw == 10) | (carriage & ~next_is_lf)) & outside
     ends = np.flatnonzero(newlines)
     if ends.size == 0 or ends[-1] != raw.size - 1:
         ends = np.append(ends, raw.size)
@@ -513,7 +617,19 @@ def first_overlong_line(path: Path, delimiter: str, fields: int) -> int | None:
         return None
     # Report the physical line, counting line ends inside quoted fields too.
     start = 0 if over[0] == 0 else int(ends[over[0] - 1]) + 1
-    return int(np.count_nonzero(raw[:start] == 10)) + 1
+    return _line_of(data, start)
+
+
+def _overlong_by_parser(data: bytes, delimiter: str, fields: int) -> int | None:
+    """:func:`first_overlong_line` by the csv module, which reads quotes as pandas does (a quote
+    inside an unquoted field is data). Latin-1 keeps every ASCII byte where it was."""
+    reader = csv.reader(io.StringIO(data.decode("latin-1"), newline=""), delimiter=delimiter)
+    line = 1
+    for row in reader:
+        if len(row) > fields:
+            return line
+        line = reader.line_num + 1
+    return None
 
 
 MAX_LABEL = 200  # characters; every chart, table and CSV repeats a group's label

@@ -202,3 +202,107 @@ def test_csv_downloads_are_rfc4180_and_guard_every_formula(tmp_path):
         for cell in record:
             folded = __import__("unicodedata").normalize("NFKC", cell).lstrip()
             assert not folded.startswith(("=", "@")), cell
+
+
+# -- 4. line ends, quotes and headers read as meant --------------------------------------------
+
+ONE_MEASURE = MANIFEST.replace('measures = ["v", "w"]', 'measures = ["v"]\nengine = "{engine}"')
+ENGINES = ["memory", "stream"]
+
+
+def one_line_error(args: list[str], capsys) -> str:
+    """Run a build that must be refused; return its one error sentence."""
+    code, out, err = run(args, capsys)
+    lines = err.strip().splitlines()
+    assert code == 2, err
+    assert len(lines) == 1 and lines[0].startswith("error: ") and lines[0].endswith("."), err
+    assert "unexpected failure" not in err
+    return lines[0]
+
+
+def engine_project(tmp_path, engine: str, data: bytes | str, manifest: str = ONE_MEASURE) -> Path:
+    return write_project(
+        tmp_path / f"p-{engine}", manifest.replace("{engine}", engine), {"data/d.csv": data}
+    )
+
+
+@pytest.mark.parametrize("engine", ENGINES)
+def test_an_inch_mark_does_not_hide_a_long_row(tmp_path, capsys, engine):
+    # '5"' is an unquoted field holding a quote: data, not the start of a quoted field. The long
+    # row after it must still be refused, not shift its values into the wrong column.
+    data = 'g,v,w\nA,5",2\nA,2,3\nA,3,5\nB,3,4,9\nB,4,5\nB,6,6\n'
+    root = engine_project(tmp_path, engine, data)
+    message = one_line_error(["build", str(root), "--out", str(tmp_path / "s"), "--quiet"], capsys)
+    assert "more fields than the header" in message
+    if engine == "memory":
+        assert "line 5" in message
+    assert not (tmp_path / "s").exists()
+
+
+@pytest.mark.parametrize("engine", ENGINES)
+def test_cr_lf_and_crlf_files_read_alike(tmp_path, engine):
+    lines = ["g,v,w", 'A,1,"2 x"', "A,2,3", "A,3,5", "B,3,4", "B,4,5", "B,6,6"]
+    means = []
+    for end in ("\n", "\r", "\r\n"):
+        root = engine_project(tmp_path / repr(end), engine, end.join(lines) + end)
+        report = sitebuild.build(root, out=tmp_path / repr(end) / "s", quiet=True)
+        assert report.datasets[0].rows_read == 6, (end, report.datasets[0])
+        results = (tmp_path / repr(end) / "s" / "results.json").read_text()
+        means.append(results.count('"mean"'))
+    assert means[0] == means[1] == means[2] > 0
+
+
+@pytest.mark.parametrize("engine", ENGINES)
+def test_no_rows_from_a_body_is_refused_never_an_empty_site(tmp_path, capsys, engine, monkeypatch):
+    # Whatever makes a reader see no rows in lines that are there (a line end it does not
+    # know), the build stops: an empty site must never replace the previous one.
+    root = engine_project(tmp_path, engine, GOOD_CSV)
+    out = tmp_path / "s"
+    sitebuild.build(root, out=out, quiet=True)
+    before = snapshot(out)
+    (root / "data/d.csv").write_text(GOOD_CSV + "C,1,2\n")
+    if engine == "stream":
+        from sitebuild.streaming import source
+
+        monkeypatch.setattr(source, "csv_chunks", lambda *a, **k: iter(()))
+    else:
+        import pandas as pd
+
+        real = pd.read_csv
+        monkeypatch.setattr(pd, "read_csv", lambda *a, **k: real(*a, **k).iloc[:0])
+    message = one_line_error(["build", str(root), "--out", str(out), "--quiet"], capsys)
+    assert "gave no rows" in message
+    assert snapshot(out) == before
+
+
+@pytest.mark.parametrize("engine", ENGINES)
+def test_a_header_splits_only_at_cr_or_lf(tmp_path, engine):
+    # Latin-1 0x85 (a Windows-1252 '…') is U+0085, a line end to str.splitlines; so are
+    # U+2028 and a form feed. In a CSV header they are part of a column name.
+    for name, data in {
+        "nel": "g,v,caf\x85,w\nA,1,2,3\nA,2,2,3\nB,3,2,3\nB,4,2,3\n".encode("latin-1"),
+        "ls": "g,v,a\u2028b,w\nA,1,2,3\nA,2,2,3\nB,3,2,3\nB,4,2,3\n".encode(),
+        "ff": b"g,v,a\x0cb,w\nA,1,2,3\nA,2,2,3\nB,3,2,3\nB,4,2,3\n",
+    }.items():
+        manifest = ONE_MEASURE.replace('["v"]', '["v", "w"]')
+        root = engine_project(tmp_path / name, engine, data, manifest)
+        report = sitebuild.build(root, out=tmp_path / name / "s", quiet=True)
+        assert report.datasets[0].rows_read == 4, name
+
+
+@pytest.mark.parametrize("engine", ENGINES)
+def test_a_header_longer_than_64_kb(tmp_path, engine):
+    wide = ",".join(f"column number {i:06d}" for i in range(4000))  # about 88 KB
+    rows = "".join(f"{'AB'[i % 2]},{i}," + ",".join("0" * 4000) + "\n" for i in range(6))
+    data = f"g,v,{wide}\n" + rows.replace("," + ",".join("0" * 4000), "," + ",".join(["0"] * 4000))
+    root = engine_project(tmp_path, engine, data)
+    report = sitebuild.build(root, out=tmp_path / "s", quiet=True)
+    assert report.datasets[0].rows_read == 6
+
+
+def test_a_million_columns_header_names_the_missing_column_briefly(tmp_path, capsys):
+    header = ",".join(f"c{i}" for i in range(1_000_000))
+    root = engine_project(tmp_path, "memory", f"g,{header}\nA,1\n")
+    message = one_line_error(["check", str(root)], capsys)
+    assert "column 'v'" in message and "999,961 more" in message
+    assert len(message) < 1000
