@@ -286,6 +286,95 @@ def _label_text(uniques) -> list[str | None]:
     return [None if gone else str(t) for t, gone in zip(text.tolist(), missing, strict=True)]
 
 
+def json_group_labels(spec: DatasetSpec, path: Path) -> list[str | None]:
+    """Return the group label of each JSON Lines record from the value's own text: ``true``,
+    ``1`` and ``1.0`` are three groups (pandas would merge them, as True == 1 == 1.0 in
+    Python); null or an absent key is None. A JSON object or list is refused."""
+    import json
+
+    labels: list[str | None] = []
+    with open(path, encoding="utf-8", errors="replace") as handle:
+        for number, line in enumerate(handle, 1):
+            if not line.strip():
+                continue
+            try:
+                record = json.loads(line, parse_float=str, parse_int=str, parse_constant=str)
+            except ValueError as exc:
+                raise SitebuildError(
+                    f"{spec.file}: not valid JSON Lines at line {number} ({exc}); each line "
+                    "must be one JSON object."
+                ) from None
+            value = record.get(spec.group) if isinstance(record, dict) else None
+            if isinstance(value, dict | list):
+                kind = "an object" if isinstance(value, dict) else "a list"
+                raise SitebuildError(
+                    f"{spec.file}: column '{spec.group}' holds {kind} at line {number}; group "
+                    "values must be text, numbers or true/false; choose another group column."
+                )
+            if isinstance(value, bool):
+                value = "true" if value else "false"
+            labels.append(value)
+    return labels
+
+
+def check_group_type(spec: DatasetSpec, arrow_type) -> None:
+    """Refuse a Parquet group column whose values are not text, numbers, true/false or dates:
+    lists, structs and maps have no label text."""
+    import pyarrow as pa
+
+    if pa.types.is_dictionary(arrow_type):
+        arrow_type = arrow_type.value_type
+    nested = (
+        pa.types.is_list(arrow_type)
+        or pa.types.is_large_list(arrow_type)
+        or pa.types.is_fixed_size_list(arrow_type)
+        or pa.types.is_struct(arrow_type)
+        or pa.types.is_map(arrow_type)
+        or pa.types.is_union(arrow_type)
+    )
+    if nested:
+        raise SitebuildError(
+            f"{spec.file}: column '{spec.group}' is of type {arrow_type}; group values must be "
+            "text, numbers or true/false; choose another group column."
+        )
+
+
+def arrow_group_text(file: str, group: str, array):
+    """Return a Parquet group column (array or chunked array) with binary values decoded as
+    UTF-8 text, refused with a sentence when they are not UTF-8; other types come back as
+    they are."""
+    import pyarrow as pa
+    import pyarrow.compute as pc
+
+    def binary(kind) -> bool:
+        return (
+            pa.types.is_binary(kind)
+            or pa.types.is_large_binary(kind)
+            or pa.types.is_fixed_size_binary(kind)
+        )
+
+    kind = array.type.value_type if pa.types.is_dictionary(array.type) else array.type
+    if not binary(kind):
+        return array
+    if isinstance(array, pa.ChunkedArray):
+        array = array.combine_chunks()
+
+    def text(values):
+        return pc.cast(
+            values if pa.types.is_binary(values.type) else pc.cast(values, pa.binary()), pa.string()
+        )
+
+    try:
+        if pa.types.is_dictionary(array.type):
+            return pa.DictionaryArray.from_arrays(array.indices, text(array.dictionary))
+        return text(array)
+    except (pa.ArrowInvalid, pa.ArrowNotImplementedError):
+        raise SitebuildError(
+            f"{file}: column '{group}' holds bytes that are not UTF-8 text (type {kind}); "
+            "store the group labels as text, or choose another group column."
+        ) from None
+
+
 def unordered_warnings(spec: DatasetSpec, groups: tuple[str, ...]) -> list[str]:
     """One warning per group the manifest's ``order`` names but the data does not have."""
     present = set(groups)
@@ -424,7 +513,15 @@ def read_frame(spec: DatasetSpec):
                 f"{spec.file}: not a readable Parquet file ({exc}); export it again."
             ) from None
         _check_columns(spec, list(schema.names))
-        frame = pq.read_table(path, columns=needed).to_pandas()
+        check_group_type(spec, schema.field(spec.group).type)
+        table = pq.read_table(path, columns=needed)
+        group = table.column(spec.group)
+        table = table.set_column(
+            table.schema.get_field_index(spec.group),
+            spec.group,
+            arrow_group_text(spec.file, spec.group, group),
+        )
+        frame = table.to_pandas()
         return frame, "parquet", None, []
     if suffix in JSONL_SUFFIXES:
         try:
@@ -434,7 +531,15 @@ def read_frame(spec: DatasetSpec):
                 f"{spec.file}: not valid JSON Lines ({exc}); each line must be one JSON object."
             ) from None
         _check_columns(spec, [str(c) for c in frame.columns])
-        return frame[needed], "utf-8", None, []
+        frame = frame[needed].copy()
+        labels = json_group_labels(spec, path)
+        if len(labels) != len(frame):
+            raise SitebuildError(
+                f"{spec.file}: not valid JSON Lines (the lines and the rows read do not "
+                "match); each line must be one JSON object."
+            )
+        frame[spec.group] = pd.Series(labels, index=frame.index, dtype=object)
+        return frame, "utf-8", None, []
     if suffix not in TEXT_SUFFIXES:
         raise SitebuildError(
             f"{spec.file}: files ending '{suffix}' are not supported; use .csv, .tsv, .txt, "

@@ -306,3 +306,75 @@ def test_a_million_columns_header_names_the_missing_column_briefly(tmp_path, cap
     message = one_line_error(["check", str(root)], capsys)
     assert "column 'v'" in message and "999,961 more" in message
     assert len(message) < 1000
+
+
+# -- 5. group values that are not plain text ---------------------------------------------------
+
+
+def test_json_lines_group_labels_come_from_the_values_own_text(tmp_path):
+    import json
+
+    values = [True, 1, 1.0, "x"]
+    lines = [json.dumps({"g": values[i % 4], "v": i, "w": i % 3}) for i in range(16)]
+    manifest = MANIFEST.replace("data/d.csv", "data/d.jsonl")
+    root = write_project(tmp_path / "p", manifest, {"data/d.jsonl": "\n".join(lines) + "\n"})
+    report = sitebuild.build(root, out=tmp_path / "s", quiet=True)
+    assert report.datasets[0].groups == 4
+    results = json.loads((tmp_path / "s" / "results.json").read_text())
+    groups = {r["group"] for r in results["datasets"][0]["summaries"] if r["group"] is not None}
+    assert groups == {"true", "1", "1.0", "x"}
+
+
+@pytest.mark.parametrize("value", [{"a": 1}, [1, 2]])
+def test_json_lines_objects_or_lists_as_groups_are_refused(tmp_path, capsys, value):
+    import json
+
+    lines = [json.dumps({"g": "A" if i else value, "v": i, "w": 1}) for i in range(6)]
+    manifest = MANIFEST.replace("data/d.csv", "data/d.jsonl")
+    root = write_project(tmp_path / "p", manifest, {"data/d.jsonl": "\n".join(lines) + "\n"})
+    message = one_line_error(["build", str(root), "--out", str(tmp_path / "s"), "--quiet"], capsys)
+    assert "column 'g' holds" in message and "line 1" in message
+
+
+def _parquet_group(path: Path, group) -> None:
+    import pyarrow as pa
+    import pyarrow.parquet as pq
+
+    n = len(group)
+    table = pa.table(
+        {"g": group, "v": pa.array([float(i) for i in range(n)]), "w": pa.array([1.0] * n)}
+    )
+    pq.write_table(table, path)
+
+
+@pytest.mark.parametrize("engine", ENGINES)
+@pytest.mark.parametrize(
+    "kind",
+    ["list", "struct", "binary-not-utf8"],
+)
+def test_parquet_group_columns_without_label_text_are_refused(tmp_path, capsys, engine, kind):
+    import pyarrow as pa
+
+    group = {
+        "list": pa.array([[1], [2]] * 4),
+        "struct": pa.array([{"a": 1}, {"a": 2}] * 4),
+        "binary-not-utf8": pa.array([b"\xff\xfe", b"ok"] * 4, pa.binary()),
+    }[kind]
+    manifest = ONE_MEASURE.replace("data/d.csv", "data/d.parquet").replace("{engine}", engine)
+    root = write_project(tmp_path / "p", manifest, {})
+    (root / "data").mkdir()
+    _parquet_group(root / "data/d.parquet", group)
+    message = one_line_error(["build", str(root), "--out", str(tmp_path / "s"), "--quiet"], capsys)
+    assert "column 'g'" in message and "group" in message
+
+
+@pytest.mark.parametrize("engine", ENGINES)
+def test_parquet_utf8_binary_groups_read_as_text(tmp_path, engine):
+    import pyarrow as pa
+
+    manifest = ONE_MEASURE.replace("data/d.csv", "data/d.parquet").replace("{engine}", engine)
+    root = write_project(tmp_path / "p", manifest, {})
+    (root / "data").mkdir()
+    _parquet_group(root / "data/d.parquet", pa.array([b"Fr\xc3\xbch", b"Nacht"] * 4, pa.binary()))
+    sitebuild.build(root, out=tmp_path / "s", quiet=True)
+    assert "Früh" in (tmp_path / "s" / "results.json").read_text(encoding="utf-8")

@@ -26,6 +26,8 @@ from ..ingest import (
     _check_columns,
     _label_text,
     _to_numbers,
+    arrow_group_text,
+    check_group_type,
     read_head,
 )
 from ..manifest import DatasetSpec
@@ -116,6 +118,7 @@ def open_source(spec: DatasetSpec) -> Source:
                     f"{spec.file}: {part.name} is not a readable Parquet file ({exc}); export it again."
                 ) from None
             _check_columns(spec, names)
+            check_group_type(spec, pq.read_schema(part).field(spec.group).type)
         return Source(
             kind="parquet",
             parts=tuple(str(p) for p in parts),
@@ -386,7 +389,10 @@ def batches(
     text = source.kind == "csv"
     first = 0
     for table in tables:
-        labels, index = _group_batch(table.column(source.group))
+        group = table.column(source.group)
+        if not text:
+            group = arrow_group_text(source.file, source.group, group)
+        labels, index = _group_batch(group)
         columns, problems = {}, {}
         for name in source.numeric:
             values, problem = _numbers_batch(
