@@ -136,18 +136,34 @@ class Cache:
         if header.get("key") != key or header.get("checksum") != checksum:
             self.notices.append(f"cache entry {path.name} failed its checksum; recomputed it")
             return None
+        secret = signing_key()
+        if secret is None or header.get("signature") != _sign(secret, key, checksum):
+            # Written by someone else (a cache handed over with the project folder): a
+            # rendered page from it could carry script, so it is never used.
+            self.notices.append(
+                f"cache entry {path.name} was not written by this user's sitebuild; recomputed it"
+            )
+            return None
         try:
-            return json.loads(body.decode("utf-8")), checksum
-        except ValueError:
+            payload = json.loads(body.decode("utf-8"))
+        except (ValueError, RecursionError):
             self.notices.append(f"cache entry {path.name} was unreadable; recomputed it")
             return None
+        if kind in SHAPES and not SHAPES[kind](payload):
+            self.notices.append(f"cache entry {path.name} has the wrong shape; recomputed it")
+            return None
+        return payload, checksum
 
     def store(self, kind: str, key: str, payload) -> str:
         """Keep ``payload`` (JSON-ready) under ``key`` and return its checksum; a cache that
         cannot be written is skipped with a notice."""
         body = canonical(payload).encode("utf-8")
         checksum = hashlib.sha256(body).hexdigest()
-        header = canonical({"format": FORMAT, "key": key, "checksum": checksum})
+        secret = signing_key()
+        signature = _sign(secret, key, checksum) if secret is not None else None
+        header = canonical(
+            {"format": FORMAT, "key": key, "checksum": checksum, "signature": signature}
+        )
         try:
             _atomic_write(self._entry(kind, key), header.encode("utf-8") + b"\n" + body)
         except OSError as exc:
@@ -186,6 +202,76 @@ class Cache:
         except OSError:
             pass  # the script is made again next time; nothing depends on the kept copy
         return data
+
+
+def _results_shape(payload) -> bool:
+    from .conforms import conforms
+
+    return conforms(payload, "dataset") and isinstance(payload.get("slug"), str)
+
+
+def _pages_shape(payload) -> bool:
+    """A dataset page and its CSV tables: one ``NAME.html`` and ``tables/*.csv``, all text."""
+    if not isinstance(payload, dict) or not all(
+        isinstance(k, str) and isinstance(v, str) for k, v in payload.items()
+    ):
+        return False
+    pages = [k for k in payload if k.endswith(".html") and "/" not in k]
+    tables = [k for k in payload if k.startswith("tables/") and k.endswith(".csv")]
+    return len(pages) == 1 and len(pages) + len(tables) == len(payload)
+
+
+def _site_shape(payload) -> bool:
+    return (
+        isinstance(payload, dict)
+        and isinstance(payload.get("site_key"), str)
+        and isinstance(payload.get("files"), dict)
+        and isinstance(payload.get("sizes"), dict)
+        and all(isinstance(v, int) for v in payload["sizes"].values())
+    )
+
+
+# What each kind of entry must look like; anything else is a miss (forged or from a bug).
+SHAPES = {"results": _results_shape, "pages": _pages_shape, "sites": _site_shape}
+
+
+def _sign(secret: bytes, key: str, checksum: str) -> str:
+    import hmac
+
+    return hmac.new(secret, f"{key}\0{checksum}".encode("ascii"), "sha256").hexdigest()
+
+
+def signing_key() -> bytes | None:
+    """Return this user's secret for signing cache entries (made on first use, kept in the
+    user's own cache folder, readable only by them), or None when it cannot be kept.
+
+    A project's cache travels with the project folder; only entries signed with this key were
+    written by this user's builds, so a forged entry with a valid checksum is still a miss.
+    """
+    folder = user_cache_folder()
+    path = folder / "signing-key"
+    try:
+        folder.mkdir(mode=0o700, parents=True, exist_ok=True)
+        if not _private(folder):
+            return None
+        try:
+            fd = os.open(path, os.O_RDONLY | getattr(os, "O_NOFOLLOW", 0))
+        except FileNotFoundError:
+            import secrets
+
+            fd = os.open(
+                path, os.O_CREAT | os.O_EXCL | os.O_WRONLY | getattr(os, "O_NOFOLLOW", 0), 0o600
+            )
+            with os.fdopen(fd, "wb") as handle:
+                handle.write(secrets.token_bytes(32))
+            fd = os.open(path, os.O_RDONLY | getattr(os, "O_NOFOLLOW", 0))
+        with os.fdopen(fd, "rb") as handle:
+            if not _private(path):
+                return None
+            secret = handle.read(64)
+    except OSError:
+        return None
+    return secret if len(secret) == 32 else None
 
 
 def user_cache_folder() -> Path:

@@ -273,6 +273,30 @@ def _report_from_results(ds: dict, reused: bool) -> DatasetReport:
     )
 
 
+READ_TRIES = 3  # reads of a file that keeps changing before the build gives up
+
+
+def file_stamp(path: Path) -> tuple:
+    """Return what changes when a file (or a folder's Parquet parts) is saved again: device,
+    inode, size, modification and change times of each."""
+    paths = [path]
+    if path.is_dir():
+        from .streaming.source import parquet_parts
+
+        paths = parquet_parts(path)
+    stamps = []
+    for item in paths:
+        try:
+            info = item.stat()
+        except OSError:
+            stamps.append((str(item), None))
+            continue
+        stamps.append(
+            (str(item), info.st_dev, info.st_ino, info.st_size, info.st_mtime_ns, info.st_ctime_ns)
+        )
+    return tuple(stamps)
+
+
 def file_digest(path: Path) -> str:
     """Return the hex SHA-256 of a file's bytes (the same digest results.json records); for a
     folder of Parquet parts, the digest of its (name, hash) list."""
@@ -294,12 +318,39 @@ def previous_results(target: Path) -> tuple[dict | None, str | None]:
         data = json.loads(path.read_text(encoding="utf-8"))
         if not isinstance(data, dict) or not isinstance(data.get("datasets"), list):
             raise ValueError("not a results tree")
-    except (OSError, ValueError):
-        return None, (
-            f"{path} could not be read, so this build is compared with nothing and its history "
-            "starts again"
-        )
+    except (OSError, ValueError, RecursionError):
+        return None, damaged_previous(target)
     return data, None
+
+
+def damaged_previous(target: Path) -> str:
+    """Return the notice for a previous results.json that cannot be used."""
+    return (
+        f"{target / 'results.json'} could not be read, so this build is compared with nothing "
+        "and its history starts again"
+    )
+
+
+def _moved(previous: dict | None, computed: dict, manifest: Manifest) -> tuple[bool, dict, list]:
+    """Return (whether any number changed, the changes block, the history) against the
+    previous build's results; raises KeyError, TypeError... when those are damaged."""
+    from .changes import compare, core, extend_history
+    from .conforms import conforms
+    from .site.render import build_time
+
+    # Equal data compare equal without encoding them again (both came through JSON).
+    numbers_changed = previous is None or core(previous) != computed
+    if not numbers_changed and "changes" in previous and "history" in previous:
+        # Nothing computed moved: the site keeps saying what moved at the last real change.
+        changes, history = previous["changes"], previous["history"][-manifest.site.history :]
+        if not conforms(changes, "changes") or not all(
+            conforms(h, "history_entry") for h in history
+        ):
+            raise ValueError("the previous changes or history are damaged")
+        return numbers_changed, changes, history
+    changes = compare(previous and core(previous), computed)
+    history = extend_history(previous, computed, manifest.site.history, build_time())
+    return numbers_changed, changes, history
 
 
 def render_key(computed_id: str, changes: dict, history: list, manifest: Manifest) -> str:
@@ -387,7 +438,7 @@ class PageMemo:
 
     def get(self, key: str, name: str) -> dict[str, bytes] | None:
         found = self.cache.load_checked("pages", key)
-        if found is None:
+        if found is None or name not in found[0]:
             return None
         self.reused.append(name)
         return {path: text.encode("utf-8") for path, text in found[0].items()}
@@ -444,9 +495,8 @@ def build(
     as one HTML file at those paths; ``progress`` is True (lines to stderr) or a function
     taking one line of text; ``quiet`` silences progress.
     """
-    from .changes import compare, core, extend_history
+    from .changes import core
     from .site import publish
-    from .site.render import build_time
 
     started = time.perf_counter()
     say = _progress(progress, quiet, started)
@@ -475,36 +525,53 @@ def build(
     with publish.Lock(target):
         datasets, reports, checksums = [], [], []
         for spec in manifest.datasets:
-            with timer.stage("cache"):
-                sha = file_digest(spec.path)
-                key = dataset_key(sha, spec, manifest.site)
-                found = cache.load_checked("results", key)
-            if found is not None and found[0].get("source", {}).get("sha256") == sha:
-                ds, checksum = found
-                datasets.append(ds)
-                checksums.append(checksum)
-                reports.append(_report_from_results(ds, reused=True))
-                if say:
-                    say(f"{spec.name}: unchanged, results reused")
-                continue
-            from .ingest import read_table
-            from .results import clean
+            for _ in range(READ_TRIES):
+                # The file's stamp before hashing and after reading: equal stamps mean the
+                # numbers come from the bytes that were hashed (a file saved in between would
+                # otherwise store its numbers under the old file's hash).
+                stamp = file_stamp(spec.path)
+                with timer.stage("cache"):
+                    sha = file_digest(spec.path)
+                    key = dataset_key(sha, spec, manifest.site)
+                    found = cache.load_checked("results", key)
+                if found is not None and found[0]["source"]["sha256"] == sha:
+                    if file_stamp(spec.path) != stamp:
+                        continue
+                    ds, checksum = found
+                    report = _report_from_results(ds, reused=True)
+                    if say:
+                        say(f"{spec.name}: unchanged, results reused")
+                    break
+                from .ingest import read_table
+                from .results import clean
 
-            if say:
-                say(f"{spec.name}: reading {spec.file}")
-            with timer.stage("read"):
-                table = read_table(
-                    spec, rng=dataset_rng(manifest.site.seed, spec.name, 99), sha256=sha
+                if say:
+                    say(f"{spec.name}: reading {spec.file}")
+                with timer.stage("read"):
+                    table = read_table(
+                        spec, rng=dataset_rng(manifest.site.seed, spec.name, 99), sha256=sha
+                    )
+                if say:
+                    say(f"{spec.name}: {table.report.rows_used:,} rows ready")
+                ds = clean(analyse(table, manifest, timer, say))
+                stopping.check()  # a stop whose KeyboardInterrupt a library swallowed
+                if file_stamp(spec.path) != stamp:
+                    if say:
+                        say(f"{spec.name}: the file changed while it was read; reading it again")
+                    continue
+                # Through JSON and back, so fresh and cached results are the very same data.
+                ds = json.loads(canonical(ds))
+                checksum = cache.store("results", key, ds)
+                report = _dataset_report(table)
+                break
+            else:
+                raise SitebuildError(
+                    f"{spec.file}: the file changed while it was read, {READ_TRIES} times over; "
+                    "build again once it is saved."
                 )
-            if say:
-                say(f"{spec.name}: {table.report.rows_used:,} rows ready")
-            ds = clean(analyse(table, manifest, timer, say))
-            stopping.check()  # a stop whose KeyboardInterrupt a library swallowed
-            # Through JSON and back, so fresh and cached results are the very same data.
-            ds = json.loads(canonical(ds))
-            checksums.append(cache.store("results", key, ds))
             datasets.append(ds)
-            reports.append(_dataset_report(table))
+            checksums.append(checksum)
+            reports.append(report)
         computed = {"tool_version": __version__, "site": site_block(manifest), "datasets": datasets}
         notices += summarised_notices(datasets)
         from .site.render import ignored_layouts
@@ -513,8 +580,12 @@ def build(
         previous, notice = previous_results(target)
         if notice:
             notices.append(notice)
-        # Equal data compare equal without encoding them again (both came through JSON).
-        numbers_changed = previous is None or core(previous) != computed
+        try:
+            numbers_changed, changes, history = _moved(previous, computed, manifest)
+        except (KeyError, TypeError, AttributeError, ValueError, IndexError, RecursionError):
+            # A damaged previous results.json must not fail every build (even --fresh ones).
+            notices.append(damaged_previous(target))
+            numbers_changed, changes, history = _moved(None, computed, manifest)
         # Identifies the computed numbers for the render key: each dataset's payload checksum
         # stands for its results, so nothing large is encoded on a no-op rebuild.
         computed_id = hashlib.sha256(
@@ -522,12 +593,6 @@ def build(
                 "utf-8"
             )
         ).hexdigest()
-        if not numbers_changed and "changes" in previous and "history" in previous:
-            # Nothing computed moved: the site keeps saying what moved at the last real change.
-            changes, history = previous["changes"], previous["history"][-manifest.site.history :]
-        else:
-            changes = compare(previous and core(previous), computed)
-            history = extend_history(previous, computed, manifest.site.history, build_time())
         results = {**computed, "changes": changes, "history": history}
         if numbers_changed:
             report_changes = tuple(changes["summary"])

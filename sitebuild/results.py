@@ -6,15 +6,19 @@ import json
 import math
 from importlib import resources
 
-import numpy as np
-
 
 def clean(value):
     """Return ``value`` with numpy scalars made plain and NaN/Infinity made None (recursively)."""
+    import numpy as np  # here, not at the top: the schema is read on the no-op path too
+
+    return _clean(value, np)
+
+
+def _clean(value, np):
     if isinstance(value, dict):
-        return {str(k): clean(v) for k, v in value.items()}
+        return {str(k): _clean(v, np) for k, v in value.items()}
     if isinstance(value, list | tuple):
-        return [clean(v) for v in value]
+        return [_clean(v, np) for v in value]
     if isinstance(value, bool | np.bool_):
         return bool(value)
     if isinstance(value, int | np.integer):
@@ -23,7 +27,7 @@ def clean(value):
         value = float(value)
         return value if math.isfinite(value) else None
     if isinstance(value, np.ndarray):
-        return clean(value.tolist())
+        return _clean(value.tolist(), np)
     return value
 
 

@@ -378,3 +378,88 @@ def test_parquet_utf8_binary_groups_read_as_text(tmp_path, engine):
     _parquet_group(root / "data/d.parquet", pa.array([b"Fr\xc3\xbch", b"Nacht"] * 4, pa.binary()))
     sitebuild.build(root, out=tmp_path / "s", quiet=True)
     assert "Früh" in (tmp_path / "s" / "results.json").read_text(encoding="utf-8")
+
+
+# -- 6. the cache and the previous results ----------------------------------------------------
+
+
+def test_a_file_saved_while_it_is_read_never_stores_numbers_under_the_old_hash(
+    proj, tmp_path, monkeypatch
+):
+    import json
+
+    import sitebuild.ingest as ingest
+
+    real = ingest.read_table
+    calls = []
+
+    def read_after_a_save(spec, *args, **kwargs):
+        calls.append(1)
+        if len(calls) == 1:  # someone saves the file between the hash and the read
+            (proj / "data/d.csv").write_text(GOOD_CSV + "C,100,1\nC,101,2\n")
+        return real(spec, *args, **kwargs)
+
+    monkeypatch.setattr(ingest, "read_table", read_after_a_save)
+    sitebuild.build(proj, out=tmp_path / "s", quiet=True)
+    results = json.loads((tmp_path / "s" / "results.json").read_text())
+    source = results["datasets"][0]["source"]
+    assert source["sha256"] == hashlib.sha256((proj / "data/d.csv").read_bytes()).hexdigest()
+    assert source["rows_read"] == 8 and len(calls) == 2
+
+
+@pytest.mark.parametrize("signed", [False, True])
+def test_forged_cache_entries_are_misses(proj, tmp_path, signed):
+    import json
+
+    from sitebuild import cache
+
+    first = sitebuild.build(proj, out=tmp_path / "s", quiet=True)
+    assert first.written
+    entries = sorted((proj / ".sitebuild_cache").rglob("*.json"))
+    assert {e.parent.name for e in entries} == {"pages", "results", "sites"}
+    for entry in entries:
+        head, _, _ = entry.read_bytes().partition(b"\n")
+        header = json.loads(head)
+        bodies = [b"[1, 2, 3]", b'{"name": "Lines"}', b'{"lines.html": 5}']
+        if not signed:  # only an entry this user's builds wrote is trusted as a page
+            bodies.append(b'{"lines.html": "<script>x</script>"}')
+        for body in bodies:
+            # A valid checksum; unsigned (handed over with the folder) or signed (as if a bug
+            # of ours wrote it), the wrong shape either way.
+            checksum = hashlib.sha256(body).hexdigest()
+            signature = cache._sign(cache.signing_key(), header["key"], checksum) if signed else "0"
+            forged = {**header, "checksum": checksum, "signature": signature}
+            entry.write_bytes(json.dumps(forged).encode() + b"\n" + body)
+            for record in (proj / ".sitebuild_cache" / "sites").glob("*.json"):
+                if record != entry:
+                    record.unlink()  # so the pages are rendered (and their entries read)
+            (tmp_path / "s" / "index.html").write_text("edited")
+            report = sitebuild.build(proj, out=tmp_path / "s", quiet=True)
+            assert any(entry.name in n and "recomputed" in n for n in report.notices), (
+                entry.parent.name,
+                report.notices,
+            )
+            assert b"<script>x" not in (tmp_path / "s" / "lines.html").read_bytes()
+
+
+@pytest.mark.parametrize(
+    "damage",
+    [
+        "[" * 100_000 + "]" * 100_000,
+        '{"datasets": [1, 2], "changes": 3, "history": "x"}',
+        '{"datasets": [{"name": 5}]}',
+        '{"datasets": []}',
+    ],
+    ids=["deeply-nested", "wrong-types", "missing-keys", "empty"],
+)
+def test_a_damaged_previous_results_file_means_no_previous_build(proj, tmp_path, capsys, damage):
+    out = tmp_path / "s"
+    sitebuild.build(proj, out=out, quiet=True)
+    (out / "results.json").write_text(damage)
+    for fresh in ([], ["--fresh"]):
+        (proj / "data/d.csv").write_text(GOOD_CSV + f"C,{len(fresh)},1\nC,2,2\n")
+        code, stdout, err = run(["build", str(proj), "--out", str(out), *fresh], capsys)
+        assert code == 0, err
+        if damage != '{"datasets": []}':
+            assert "could not be read" in stdout or "could not be read" in err
+        (out / "results.json").write_text(damage)
