@@ -217,6 +217,16 @@ def _main(argv: list[str] | None) -> int:
     args = parser().parse_args(argv)
     debug = getattr(args, "debug", False) or os.environ.get("SITEBUILD_DEBUG") == "1"
     try:
+        for option in ("project", "folder", "out", "zip", "single_file"):
+            value = getattr(args, option, None)
+            if isinstance(value, str) and "\0" in value:
+                name = (
+                    option if option in ("project", "folder") else "--" + option.replace("_", "-")
+                )
+                raise SitebuildError(
+                    f"the path given as {name} holds a NUL character; paths cannot contain one, "
+                    "so remove it."
+                )
         if args.command == "build":
             return _build(args)
         if args.command == "check":

@@ -9,6 +9,7 @@ from __future__ import annotations
 import difflib
 import math
 import re
+import stat
 import tomllib
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -216,6 +217,8 @@ def _project_path(check: _Checker, root: Path, where: str, key: str, raw: str, b
             "give a path inside the project folder, relative to manifest.toml",
             block,
         )
+    if "\0" in raw:
+        check.fail(where, key, "holds a NUL character", "remove it from the path", block)
     resolved = root / relative
     if not _inside(root, resolved):
         check.fail(
@@ -225,8 +228,22 @@ def _project_path(check: _Checker, root: Path, where: str, key: str, raw: str, b
             "copy the file into the project folder",
             block,
         )
-    # A folder is a dataset of Parquet parts (read by the stream or dask engine).
-    if not (resolved.is_file() or (key == "file" and resolved.is_dir())):
+    # A folder is a dataset of Parquet parts (read by the stream or dask engine). Judged by
+    # type, never by opening: a FIFO would block the build, a device never end.
+    try:
+        mode = resolved.stat().st_mode
+    except OSError:
+        mode = None
+    if mode is not None and not (stat.S_ISREG(mode) or (key == "file" and stat.S_ISDIR(mode))):
+        kind = "a folder" if stat.S_ISDIR(mode) else "not a regular file"
+        check.fail(
+            where,
+            key,
+            f"names '{raw}', which is {kind}",
+            "name a data file" if key == "file" else "name a markdown file",
+            block,
+        )
+    if mode is None:
         check.fail(
             where,
             key,

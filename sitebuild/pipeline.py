@@ -522,7 +522,8 @@ def build(
             f"{target.parent}: cannot create the folder ({exc.strerror}); choose another --out."
         ) from None
     notices: list[str] = []
-    with publish.Lock(target):
+    with publish.Lock(target) as lock:
+        notices += lock.notices
         datasets, reports, checksums = [], [], []
         for spec in manifest.datasets:
             for _ in range(READ_TRIES):
@@ -620,6 +621,7 @@ def build(
                 # Names the project, so its manifest's output may write here again even when
                 # it lies outside the project (see publish.check_target).
                 files[render.MARKER] += (publish.marker_line(manifest) + "\n").encode()
+                files[render.MARKER] += publish.site_listing(files)
                 if say and memo.reused:
                     say(f"pages reused unchanged: {', '.join(memo.reused)}")
                 unchanged = publish.same_as_disk(files, target)
@@ -645,7 +647,9 @@ def build(
             with timer.stage("zip"):
                 if zip_path is not None:
                     data = publish.zip_bytes(files, publish.zip_folder_name(zip_path))
-                    publish.write_file(zip_path, data, "zip")
+                    publish.write_file(
+                        zip_path, data, "zip", published=None if unchanged else target
+                    )
                     zip_bytes = len(data)
                 if single_path is not None:
                     from .site.single_file import render_single
@@ -653,7 +657,9 @@ def build(
                     if say:
                         say("writing the single file")
                     data = render_single(results, manifest, files=files)
-                    publish.write_file(single_path, data, "single file")
+                    publish.write_file(
+                        single_path, data, "single file", published=None if unchanged else target
+                    )
                     single_bytes = len(data)
     notices += cache.notices
     summary = _sizes(sizes)

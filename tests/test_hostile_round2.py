@@ -8,6 +8,7 @@ from __future__ import annotations
 
 import hashlib
 import os
+import re
 from pathlib import Path
 
 import pytest
@@ -463,3 +464,49 @@ def test_a_damaged_previous_results_file_means_no_previous_build(proj, tmp_path,
         if damage != '{"datasets": []}':
             assert "could not be read" in stdout or "could not be read" in err
         (out / "results.json").write_text(damage)
+
+
+# -- 8. notes -----------------------------------------------------------------------------------
+
+
+def test_note_links_go_only_to_the_web_mail_or_the_same_page():
+    from sitebuild.site.render import sanitise_notes
+
+    html = sanitise_notes(
+        "[a](//host/share) [b](\\\\\\\\host\\\\share) [c](file:///etc/passwd) [d](other.html) "
+        "[e](https://example.org/) [f](mailto:team@example.org) [g](#method) [h](/\\\\host)"
+    )
+    kept = re.findall(r'href="([^"]*)"', html)
+    assert kept == ["https://example.org/", "mailto:team@example.org", "#method"]
+    assert html.count("<a ") == 8  # the text of a dropped link stays
+
+
+def test_notes_nested_deeper_than_the_markdown_library_recurses_still_render():
+    from sitebuild.site.render import sanitise_notes
+
+    deep_lists = "\n".join("  " * i + "- item" for i in range(300))
+    deep_quotes = "> " * 400 + "quoted"
+    for text in (deep_lists, deep_quotes):
+        assert "item" in sanitise_notes(text) or "quoted" in sanitise_notes(text)
+
+
+@pytest.mark.parametrize("unit", ["[a](", "[", "![a](", "[a][", "*a", "<a", "_a"])
+def test_pathological_notes_render_without_hanging(unit):
+    # '[a](' repeated over 80 KB took 70 s and doubling it quadrupled the time. The bound is a
+    # guard against a hang on a loaded machine; the figures are in the report of the change.
+    import time
+
+    from sitebuild.site.render import sanitise_notes
+
+    text = unit * (100_000 // len(unit))
+    started = time.perf_counter()
+    html = sanitise_notes(text)
+    assert time.perf_counter() - started < 20
+    assert "<p>" in html
+
+
+def test_a_note_larger_than_the_cap_is_refused(proj, tmp_path, capsys):
+    manifest = MANIFEST + 'notes = "notes.md"\n'
+    write_project(proj, manifest, {"notes.md": "word " * 120_000})
+    message = one_line_error(["build", str(proj), "--out", str(tmp_path / "s"), "--quiet"], capsys)
+    assert "notes.md" in message and "at most 512 KB" in message

@@ -140,12 +140,88 @@ def _inline_json(data) -> str:
     return Markup(text)
 
 
+# Notes are small texts; a larger file is refused with a sentence (see dataset_page).
+NOTES_MAX_BYTES = 512 * 1024
+# The markdown library's inline parsing takes time proportional to (delimiters in a block) x
+# (the block's length): '[a](' repeated 20,000 times took minutes. A block above this product
+# is shown as the plain text it is, without markdown.
+BLOCK_COST = 200_000
+NOTE_COST = 4_000_000  # for the whole note: past it, only cheap blocks still get markdown
+SMALL_COST = 2_000
+_INLINE = re.compile(r"[\[\]*_`<!(]")
+# Links may go to the web, to mail, or to a place on the same page; nothing else (no
+# //host or \\host share, no relative file, no other scheme).
+_SAFE_LINK = re.compile(r"(?:https?://[^/\\\s]|mailto:[^/\\\s]|#)", re.IGNORECASE)
+
+
+def _block_cost(block: str) -> int:
+    """Return the work the markdown library may spend on a block's inline text, in its own
+    rough units (delimiters x length; a table's rows are parsed one by one)."""
+    lines = block.split("\n")
+    if all(line.lstrip().startswith("|") for line in lines if line.strip()):
+        return max((len(_INLINE.findall(line)) * len(line) for line in lines), default=0)
+    return len(_INLINE.findall(block)) * len(block)
+
+
+def _too_deep(block: str) -> bool:
+    """True when a block nests lists or quotes deeper than the markdown library can recurse."""
+    for line in block.split("\n"):
+        stripped = line.lstrip(" \t")
+        if len(line) - len(stripped) > MAX_INDENT:
+            return True
+        if len(stripped) - len(stripped.lstrip("> \t")) > 2 * MAX_QUOTES:
+            return True
+    return False
+
+
+MAX_INDENT = 64  # columns of leading white space: 16 levels of nested lists
+MAX_QUOTES = 16  # levels of nested quotes ('> > > ...')
+
+
+def _defuse(text: str) -> tuple[str, dict[str, str]]:
+    """Return (the note with each costly or too deeply nested block replaced by a token,
+    token -> that block as escaped HTML); ordinary notes come back unchanged."""
+    from markupsafe import escape
+
+    blocks = re.split(r"(\n[ \t]*\n)", text)
+    raw: dict[str, str] = {}
+    budget = NOTE_COST
+    for i in range(0, len(blocks), 2):
+        block = blocks[i]
+        cost = _block_cost(block)
+        if cost > BLOCK_COST or _too_deep(block) or (cost > SMALL_COST and cost > budget):
+            token = f"sitebuildrawblock{len(raw)}x"
+            raw[token] = f"<p>{escape(block)}</p>"
+            blocks[i] = token
+        else:
+            budget -= cost
+    return "".join(blocks), raw
+
+
+def _link_filter(tag: str, attribute: str, value: str) -> str | None:
+    if tag == "a" and attribute == "href":
+        return value if _SAFE_LINK.match(value.strip()) else None
+    return value
+
+
 def sanitise_notes(text: str) -> str:
-    """Return notes markdown as HTML with only ordinary formatting, links and tables kept."""
+    """Return notes markdown as HTML with only ordinary formatting, links and tables kept.
+
+    Links keep http, https and mailto addresses and in-page anchors only. A note nested too
+    deeply for the markdown library is shown as plain text.
+    """
     import markdown
     import nh3
 
-    html = markdown.markdown(text, extensions=["tables", "sane_lists"], output_format="html")
+    defused, raw = _defuse(text)
+    try:
+        html = markdown.markdown(defused, extensions=["tables", "sane_lists"], output_format="html")
+    except RecursionError:
+        from markupsafe import escape
+
+        html, raw = f"<pre>{escape(text)}</pre>", {}
+    for token, block in raw.items():
+        html = html.replace(f"<p>{token}</p>", block).replace(token, block)
     # Notes sit under the page's own title: demote their headings two levels (h1 -> h3).
     html = re.sub(r"<(/?)h([1-6])\b", lambda m: f"<{m[1]}h{min(6, int(m[2]) + 2)}", html)
     return nh3.clean(
@@ -154,6 +230,7 @@ def sanitise_notes(text: str) -> str:
         attributes={"a": {"href", "title"}, "th": {"align"}, "td": {"align"}},
         url_schemes={"http", "https", "mailto"},
         link_rel="noopener noreferrer",
+        attribute_filter=_link_filter,
     )
 
 
@@ -292,6 +369,14 @@ def dataset_page(env, common: dict, ds: dict, spec) -> tuple[dict, dict]:
         tables[key] = dataclasses.replace(table, href=name)
     notes_html = None
     if spec.notes_path is not None:
+        size = spec.notes_path.stat().st_size
+        if size > NOTES_MAX_BYTES:
+            from ..errors import SitebuildError
+
+            raise SitebuildError(
+                f"{spec.notes_path.name}: the notes of dataset '{spec.name}' are {size // 1024:,} "
+                f"KB; notes can be at most {NOTES_MAX_BYTES // 1024} KB — shorten them."
+            )
         notes_html = sanitise_notes(spec.notes_path.read_text(encoding="utf-8", errors="replace"))
     context = {
         **common,
