@@ -5,12 +5,41 @@ from __future__ import annotations
 import argparse
 import json
 import os
+import re
 import signal
 import sys
 import threading
 
 from . import __version__, stopping
 from .errors import SitebuildError
+
+# Control characters (C0 but line end and tab, DEL, C1) from untrusted text (column names,
+# labels, dataset names) would reach the terminal as escape sequences: shown escaped instead.
+_CONTROL = re.compile(r"[\x00-\x08\x0b-\x1f\x7f-\x9f]")
+_CONTROL_OR_LINE_END = re.compile(r"[\x00-\x08\x0a-\x1f\x7f-\x9f]")
+
+
+def terminal_text(text: str, one_line: bool = False) -> str:
+    """Return ``text`` safe to print: control characters (ESC, CR, BEL... and, with
+    ``one_line``, line ends) shown as ``\\x1b``-style escapes, never sent raw.
+
+    Examples
+    --------
+    >>> terminal_text("a\x1b[2Jb")
+    'a\\x1b[2Jb'
+    """
+    pattern = _CONTROL_OR_LINE_END if one_line else _CONTROL
+    return pattern.sub(lambda m: f"\\x{ord(m[0]):02x}", text)
+
+
+def say_line(text: str, **kwargs) -> None:
+    """Print one line of output with untrusted text made safe (see :func:`terminal_text`)."""
+    print(terminal_text(text), **kwargs)
+
+
+def say_error(error) -> None:
+    """Print an error as one ``error:`` line on standard error, control characters escaped."""
+    print(f"error: {terminal_text(str(error), one_line=True)}", file=sys.stderr)
 
 
 def _size(n: int) -> str:
@@ -148,9 +177,10 @@ def parser() -> argparse.ArgumentParser:
 
 def _print_build(report, args) -> None:
     if args.json:
+        # JSON escapes every control character itself.
         print(json.dumps(report.to_json(), sort_keys=True, indent=1, allow_nan=False))
     else:
-        print(format_build(report, quiet=args.quiet))
+        say_line(format_build(report, quiet=args.quiet))
 
 
 def _build(args) -> int:
@@ -175,7 +205,7 @@ def _build(args) -> int:
         _print_build(report, args)
 
     def failed(error: SitebuildError) -> None:
-        print(f"error: {error}", file=sys.stderr)
+        say_error(error)
 
     print("Watching for changes; press Ctrl-C to stop.", file=sys.stderr)
     watch(args.project, once, on_error=failed)
@@ -233,7 +263,7 @@ def _main(argv: list[str] | None) -> int:
             from . import check
 
             report = check(args.project, out=args.out)
-            print(format_check(report))
+            say_line(format_check(report))
         elif args.command == "new":
             from .scaffold import new_project
 
@@ -242,9 +272,11 @@ def _main(argv: list[str] | None) -> int:
             print(f"Build it with: sitebuild build {args.folder}")
         return 0
     except SitebuildError as error:
-        if debug:
-            raise
-        print(f"error: {error}", file=sys.stderr)
+        if debug:  # the traceback, and still the exit code of bad input
+            import traceback
+
+            traceback.print_exc()
+        say_error(error)
         return error.exit_code
     except KeyboardInterrupt:
         return _interrupted(args)
@@ -253,10 +285,9 @@ def _main(argv: list[str] | None) -> int:
             return _interrupted(args)
         if debug:
             raise
-        print(
-            f"error: unexpected failure ({type(error).__name__}: {error}); the previous site is "
-            "unchanged — run again with --debug to see where, and report it.",
-            file=sys.stderr,
+        say_error(
+            f"unexpected failure ({type(error).__name__}: {error}); the previous site is "
+            "unchanged — run again with --debug to see where, and report it."
         )
         return 1
 

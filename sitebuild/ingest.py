@@ -376,13 +376,20 @@ def arrow_group_text(file: str, group: str, array):
 
 
 def unordered_warnings(spec: DatasetSpec, groups: tuple[str, ...]) -> list[str]:
-    """One warning per group the manifest's ``order`` names but the data does not have."""
+    """Warnings for the groups the manifest's ``order`` names but the data does not have: one
+    per label up to five, then one warning summing up the rest (with the first few names)."""
     present = set(groups)
+    missing = [label for label in spec.order if label not in present]
+    if len(missing) > 5:
+        shown = ", ".join(f"'{_short(label, 30)}'" for label in missing[:3])
+        return [
+            f"order names {len(missing):,} labels that are not groups in column "
+            f"'{spec.group}' (such as {shown}); check the spelling (labels are compared exactly)."
+        ]
     return [
         f"order names '{label}', which is not a group in column '{spec.group}'; check the "
         "spelling (labels are compared exactly)."
-        for label in spec.order
-        if label not in present
+        for label in missing
     ]
 
 

@@ -469,7 +469,10 @@ def _progress(progress, quiet: bool, started: float):
     if progress is True:
 
         def say(line: str) -> None:
-            print(f"[{time.perf_counter() - started:6.1f} s] {line}", file=sys.stderr, flush=True)
+            from .cli import terminal_text
+
+            stamp = f"[{time.perf_counter() - started:6.1f} s]"
+            print(f"{stamp} {terminal_text(line, one_line=True)}", file=sys.stderr, flush=True)
 
         return say
 

@@ -75,6 +75,17 @@ def watch(
             if on_error is None:
                 raise
             on_error(error)
+        except (KeyboardInterrupt, SystemExit):
+            raise
+        except Exception as error:  # noqa: BLE001 - a watch outlives one failed rebuild
+            if on_error is None:
+                raise
+            on_error(
+                SitebuildError(
+                    f"unexpected failure ({type(error).__name__}: {error}); the previous site is "
+                    "unchanged — still watching, run a build with --debug to see where"
+                )
+            )
 
     state = snapshot(watched_files(project))
     run(True)
