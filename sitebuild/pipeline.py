@@ -122,6 +122,24 @@ class Timer:
             self.stages[name] = self.stages.get(name, 0.0) + time.perf_counter() - start
 
 
+@contextmanager
+def one_blas_thread():
+    """Run the block with the BLAS library (behind numpy's dot and matrix products) on one thread.
+
+    Why: a threaded BLAS splits a long dot product between its threads, so the rounding of
+    every sum of squares depended on how many cores the machine had (results.json differed
+    in the last digits between machines), and its spinning threads fought the analysis
+    threads for the cores: a 125,000-value dot took 30 times longer on a busy 2-core machine.
+    """
+    # The limit applies to the BLAS libraries already loaded: numpy's, and scipy's own.
+    import numpy  # noqa: F401
+    import scipy.linalg  # noqa: F401
+    from threadpoolctl import threadpool_limits
+
+    with threadpool_limits(limits=1, user_api="blas"):
+        yield
+
+
 def section_modules() -> list:
     """Return the section modules in page order."""
     return [importlib.import_module(f"sitebuild.sections.{name}") for name in SECTION_NAMES]
@@ -336,7 +354,7 @@ def _moved(previous: dict | None, computed: dict, manifest: Manifest) -> tuple[b
     previous build's results; raises KeyError, TypeError... when those are damaged."""
     from .changes import compare, core, extend_history
     from .conforms import conforms
-    from .site.render import build_time
+    from .site.render import build_time, data_time
 
     # Equal data compare equal without encoding them again (both came through JSON).
     numbers_changed = previous is None or core(previous) != computed
@@ -349,7 +367,9 @@ def _moved(previous: dict | None, computed: dict, manifest: Manifest) -> tuple[b
             raise ValueError("the previous changes or history are damaged")
         return numbers_changed, changes, history
     changes = compare(previous and core(previous), computed)
-    history = extend_history(previous, computed, manifest.site.history, build_time())
+    # Dated by SOURCE_DATE_EPOCH, else by the data files' newest modification time.
+    dated = build_time() or data_time(manifest)
+    history = extend_history(previous, computed, manifest.site.history, dated)
     return numbers_changed, changes, history
 
 
@@ -551,13 +571,14 @@ def build(
 
                 if say:
                     say(f"{spec.name}: reading {spec.file}")
-                with timer.stage("read"):
-                    table = read_table(
-                        spec, rng=dataset_rng(manifest.site.seed, spec.name, 99), sha256=sha
-                    )
-                if say:
-                    say(f"{spec.name}: {table.report.rows_used:,} rows ready")
-                ds = clean(analyse(table, manifest, timer, say))
+                with one_blas_thread():
+                    with timer.stage("read"):
+                        table = read_table(
+                            spec, rng=dataset_rng(manifest.site.seed, spec.name, 99), sha256=sha
+                        )
+                    if say:
+                        say(f"{spec.name}: {table.report.rows_used:,} rows ready")
+                    ds = clean(analyse(table, manifest, timer, say))
                 stopping.check()  # a stop whose KeyboardInterrupt a library swallowed
                 if file_stamp(spec.path) != stamp:
                     if say:
@@ -618,7 +639,10 @@ def build(
 
                 if say:
                     say("rendering pages")
-                bundle = cache.chart_bundle(render.chart_bundle)
+                from .site.chart_script import chart_script
+
+                # Made once per user and installed version, not per project or build.
+                bundle = chart_script(render.chart_bundle)
                 memo = PageMemo(cache, manifest, results, checksums)
                 files = render.render_site(results, manifest, bundle=bundle, pages=memo)
                 # Names the project, so its manifest's output may write here again even when

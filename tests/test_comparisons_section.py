@@ -289,8 +289,8 @@ def test_layout_escapes_labels_and_shows_lead_test_first(mixed):
         ds=ds, measure="m", mi=0, charts=charts, tables=tables, site=SiteSettings()
     )
     assert EVIL not in html and "&lt;script&gt;" in html
-    assert '<section class="comparisons"' in html
-    assert html.index("Lead test") < html.index("Sensitivity check")
+    assert '<div class="comparisons"' in html
+    assert html.index("Main test") < html.index("Other tests")
 
 
 @pytest.mark.slow

@@ -235,3 +235,37 @@ def test_kendall_above_the_limit_uses_one_row_sample_for_every_pair():
         assert c.n == limit and c.n_available == rows
         assert c.r == pytest.approx(ref.statistic, abs=1e-12)
         assert c.p == pytest.approx(ref.pvalue, rel=1e-9)
+
+
+@pytest.mark.parametrize("sign", [1.0, -1.0])
+def test_spearman_of_perfectly_ordered_data_has_no_interval_or_p_like_kendall(sign):
+    # Reference: scipy.stats.spearmanr and kendalltau give rho = tau = ±1 on a monotone but
+    # curved relation; scipy's t approximation then gives p = 0 and a Fisher interval [1, 1],
+    # which is no real uncertainty. Spearman is treated like Kendall's tau-b = ±1: the
+    # coefficient, no interval, no p-value, and a note.
+    x = np.linspace(0.0, 3.0, 30)
+    y = sign * np.exp(x)
+    assert stats.spearmanr(x, y).statistic == pytest.approx(sign)
+    rho, tau = spearman(x, y), kendall(x, y)
+    assert rho.r == sign and tau.r == pytest.approx(sign)
+    assert (rho.ci_low, rho.ci_high, rho.p) == (None, None, None)
+    assert (tau.ci_low, tau.ci_high) == (None, None)
+    assert rho.reason and "±1" in rho.reason
+    # The table path (with a missing value, so the pair keeps its own complete rows) agrees.
+    data = np.column_stack([x, y, np.where(np.arange(30) == 4, np.nan, y)])
+    table = correlation_tables(data, methods=("spearman",), rng=np.random.default_rng(0))[0]
+    for _, _, c in table.pairs:
+        assert (c.ci_low, c.ci_high, c.p) == (None, None, None) and c.reason
+
+
+def test_nearly_perfect_spearman_keeps_its_interval_and_p():
+    # Reference: scipy.stats.spearmanr; one adjacent swap in 30 values gives rho = 1 - 6·2 /
+    # (30·899) = 0.99956, an ordinary estimate with an interval and a p-value.
+    x = np.arange(30.0)
+    y = x.copy()
+    y[[10, 11]] = y[[11, 10]]
+    rho = spearman(x, y)
+    assert rho.r == pytest.approx(stats.spearmanr(x, y).statistic, abs=1e-12)
+    assert rho.ci_low is not None and rho.p is not None and rho.reason is None
+    table = correlation_tables(np.column_stack([x, y]), methods=("spearman",))[0]
+    assert table.pairs[0][2].ci_low is not None

@@ -119,7 +119,8 @@ def test_page_reports_what_reading_left_out(example_site):
     page = (example_site / "hydroponic-growing-trial.html").read_text(encoding="utf-8")
     assert "could not be read as numbers" in page
     assert "12..5" in page
-    assert re.search(r"1 row dropped: missing group label", page)
+    assert re.search(r"1 row not used: missing group label", page)
+    assert "99.7 % of rows used (393 of 394)" in page
 
 
 def test_hostile_labels_stay_text(tmp_path):

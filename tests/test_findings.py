@@ -141,16 +141,17 @@ def test_equal_spread_tests_are_not_a_check_when_spreads_differ():
     entry = _entry([_pair("A", "B", disagree=["tukey_p"])], (0.0001, 0.24, 0.3))
     for o in entry["omnibus"]:
         o["p"] = {"one-way ANOVA": 0.0001, "Welch's ANOVA": 0.24, "Kruskal–Wallis": 0.3}[o["test"]]
-    entry["lead_reason"] = (
-        "Welch's ANOVA leads because the largest standard deviation is 10.8 times the smallest"
-    )
+    # The decision is read from the spread check's data, not from the reason's wording.
+    entry["lead_reason"] = "Welch's ANOVA leads."
+    entry["lead_basis"] = {"unequal_spread": True, "unbalanced_sizes": False}
     text = " ".join(measure_findings(entry, SiteSettings()))
     assert "does not agree" not in text and "borderline" not in text
     assert "assumes equal spread, which these groups do not have" in text
-    # Unbalanced sizes alone: the one-way ANOVA stays a fair check.
+    # Unbalanced sizes alone: the one-way ANOVA stays a fair check, whatever the reason says.
     entry["lead_reason"] = (
-        "Welch's ANOVA leads because group sizes are unbalanced (5 to 500 values)"
+        "Welch's ANOVA leads because the largest standard deviation is 10.8 times the smallest"
     )
+    entry["lead_basis"] = {"unequal_spread": False, "unbalanced_sizes": True}
     text = " ".join(measure_findings(entry, SiteSettings()))
     assert "does not agree" in text and "borderline" in text
 

@@ -166,3 +166,41 @@ def test_binned_fit_matches_statsmodels_on_200k_points():
     ref = lowess(y, x, frac=0.3, it=0, delta=0.002 * np.ptp(x), return_sorted=True)
     expected = np.interp(ours.x, ref[:, 0], ref[:, 1])
     assert np.max(np.abs(ours.fit - expected)) < 2e-3 * float(np.std(y))
+
+
+def test_smooth_on_few_tied_x_values_says_where_it_becomes_a_local_mean():
+    # Source: statsmodels.datasets.fair (Fair 1978), affairs against educ, which takes only 6
+    # values (9, 12, 14, 16, 17, 20). With span 0.5 the neighbourhoods near x = 12 hold
+    # weight at x = 12 alone, so no local line exists there: the fit is a local mean, and
+    # the results must say so (statsmodels.nonparametric.lowess fits other values there).
+    # Elsewhere the fit matches statsmodels' lowess (the tool's binned path, as on a page).
+    import statsmodels.api as sm
+
+    data = sm.datasets.fair.load_pandas().data
+    x = data["educ"].to_numpy(float)
+    y = data["affairs"].to_numpy(float)
+    fit = loess(x, y, 0.5, 1)
+    assert fit.fallback is not None
+    assert "6 distinct values" in fit.fallback and "local weighted mean" in fit.fallback
+    ref = sm.nonparametric.lowess(y, x, frac=0.5, it=0, xvals=fit.x)
+    assert np.isclose(fit.fit, ref, rtol=1e-3).sum() >= 50  # most of the grid agrees
+    assert "x 11.56 to 14" in fit.fallback  # where: the grid points around x = 12
+    # Span 0.75: every neighbourhood spans several x values; statsmodels agrees everywhere.
+    wide = loess(x, y, 0.75, 1)
+    ref = sm.nonparametric.lowess(y, x, frac=0.75, it=0, xvals=wide.x)
+    np.testing.assert_allclose(wide.fit, ref, rtol=1e-3)
+    assert wide.fallback is None
+
+
+def test_smooth_on_distinct_x_has_no_fallback_note():
+    # Reference: statsmodels.nonparametric.lowess on continuous x (no ties): same fit, no note.
+    import statsmodels.api as sm
+
+    rng = np.random.default_rng(3)
+    x = rng.uniform(0, 10, 200)
+    y = np.sin(x) + rng.normal(0, 0.3, 200)
+    fit = loess(x, y, 0.3, 1)
+    assert fit.fallback is None
+    np.testing.assert_allclose(
+        fit.fit, sm.nonparametric.lowess(y, x, frac=0.3, it=0, xvals=fit.x), rtol=1e-8
+    )

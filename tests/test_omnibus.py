@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+from fractions import Fraction
+
 import numpy as np
 import pytest
 from scipy import stats
@@ -251,3 +253,85 @@ def test_spread_test_matches_scipy_levene(center):
     ref = stats.levene(*groups, center=center)
     assert r.statistic == pytest.approx(ref.statistic, rel=1e-10)
     assert r.pvalue == pytest.approx(ref.pvalue, rel=1e-9)
+
+
+def _smls_groups(offset: str, per_group: int) -> list[np.ndarray]:
+    """NIST StRD SmLs data as parsed doubles (offset '' = SmLs01-03, 1e6 = 04-06, 1e12 = 07-09)."""
+    if offset == "":
+        return [
+            np.array([float(f"{d / 10:.1f}") for d in _digits(c, per_group)]) for c in _centres()
+        ]
+    return [
+        np.array([float(f"{offset}.{d % 10}") for d in _digits(c, per_group)]) for c in _centres()
+    ]
+
+
+def _exact_anova_f(groups: list[np.ndarray]) -> Fraction:
+    """One-way ANOVA F in exact rational arithmetic on the doubles as stored (no rounding)."""
+    exact = [[Fraction(float(v)) for v in g] for g in groups]
+    n = sum(len(g) for g in exact)
+    k = len(exact)
+    means = [sum(g) / len(g) for g in exact]
+    grand = sum(sum(g) for g in exact) / n
+    between = sum(len(g) * (m - grand) ** 2 for g, m in zip(exact, means, strict=True))
+    within = sum(sum((v - m) ** 2 for v in g) for g, m in zip(exact, means, strict=True))
+    return (between / (k - 1)) / (within / (n - k))
+
+
+def _exact_welch_f(groups: list[np.ndarray]) -> Fraction:
+    """Welch's F (Welch 1951) in exact rational arithmetic on the doubles as stored."""
+    exact = [[Fraction(float(v)) for v in g] for g in groups]
+    k = len(exact)
+    ns = [len(g) for g in exact]
+    means = [sum(g) / len(g) for g in exact]
+    variances = [
+        sum((v - m) ** 2 for v in g) / (len(g) - 1) for g, m in zip(exact, means, strict=True)
+    ]
+    w = [n / v for n, v in zip(ns, variances, strict=True)]
+    big_w = sum(w)
+    centre = sum(wi * m for wi, m in zip(w, means, strict=True)) / big_w
+    a = sum(wi * (m - centre) ** 2 for wi, m in zip(w, means, strict=True)) / (k - 1)
+    h = sum((1 - wi / big_w) ** 2 / (n - 1) for wi, n in zip(w, ns, strict=True))
+    return a / (1 + Fraction(2 * (k - 2), k * k - 1) * h)
+
+
+@pytest.mark.parametrize("per_group", [21, 201, 2001])
+@pytest.mark.parametrize("offset", ["", "1000000"])
+def test_anova_f_is_certified_21_201_2001_on_smls01_to_06(offset, per_group):
+    # Source: NIST StRD SmLs01-06, certified F = 21, 201, 2001 (exact); within 1e-9 relative.
+    r = one_way_anova(_smls_groups(offset, per_group))
+    assert r.statistic == pytest.approx(SMLS_CERTIFIED[per_group]["f"], rel=1e-9)
+
+
+@pytest.mark.parametrize("per_group", [21, 201, 2001])
+def test_anova_and_welch_f_match_exact_arithmetic_on_smls07_to_09(per_group):
+    # Source: NIST StRD SmLs07-09 (values near 1e12). Parsed to doubles the data carry
+    # representation error (~1e-4 of their spread), so the certified F = 21 is not attainable;
+    # the reference is the exact rational F of the parsed doubles (fractions.Fraction).
+    # Before the pivot shift, SmLs07 gave F = 20.98860 against the exact 21.00081 (5.8e-4).
+    groups = _smls_groups("1000000000000", per_group)
+    assert one_way_anova(groups).statistic == pytest.approx(
+        float(_exact_anova_f(groups)), rel=1e-12
+    )
+    if per_group <= 201:  # the exact Welch sums on 18,009 values take too long for a unit test
+        assert welch_anova(groups).statistic == pytest.approx(
+            float(_exact_welch_f(groups)), rel=1e-12
+        )
+    # scipy.stats.f_oneway centres the data too: it agrees.
+    assert one_way_anova(groups).statistic == pytest.approx(
+        stats.f_oneway(*groups).statistic, rel=1e-12
+    )
+
+
+def test_groups_far_apart_keep_their_own_spread():
+    # Reference: scipy.stats.f_oneway and statsmodels anova_oneway (Welch) on the same data.
+    # A common pivot must not round away a group's spread: here the pivot lies near -5e69,
+    # where 0 and 1.9 are the same double (found by the random-table property test).
+    from statsmodels.stats.oneway import anova_oneway
+
+    groups = [np.array([0.0] * 17 + [1.9]), np.array([0.0, -1e70])]
+    assert one_way_anova(groups).statistic == pytest.approx(
+        stats.f_oneway(*groups).statistic, rel=1e-9
+    )
+    ref = anova_oneway(groups, use_var="unequal", welch_correction=True)
+    assert welch_anova(groups).statistic == pytest.approx(ref.statistic, rel=1e-9)

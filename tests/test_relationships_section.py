@@ -15,6 +15,7 @@ from statsmodels.stats.multitest import multipletests
 from sitebuild.ingest import IngestReport, Table
 from sitebuild.manifest import DatasetSpec, SiteSettings
 from sitebuild.sections import relationships as rel
+from sitebuild.site.together import together_sentences
 
 ROOT = Path(__file__).resolve().parents[1]
 SCHEMA = json.loads((ROOT / "sitebuild/schema/sections/relationships.json").read_text())
@@ -244,9 +245,13 @@ def _render(out, settings, charts, tables):
     env = jinja2.Environment(loader=loader, autoescape=True, undefined=jinja2.StrictUndefined)
     env.filters["num"] = lambda v: "—" if v is None else f"{v:.3g}"
     env.filters["pval"] = lambda v: "—" if v is None else ("< 0.001" if v < 0.001 else f"{v:.3f}")
-    env.filters["pct"] = lambda v: f"{100 * v:.0f}%"
+    env.filters["pct"] = lambda v, *digits: f"{100 * v:.0f}%"
     return env.get_template("sections/relationships.html").render(
-        ds=out, charts={c.id: c for c in charts}, tables={t.id: t for t in tables}, site=settings
+        ds=out,
+        charts={c.id: c for c in charts},
+        tables={t.id: t for t in tables},
+        site=settings,
+        together=together_sentences(out, settings.alpha),
     )
 
 
@@ -256,7 +261,7 @@ def test_layout_renders_every_chart_and_table_and_escapes_user_text():
     out = rel.compute(_synthetic(n=7000), settings, rng, {})
     charts, tables = rel.charts(out, settings), rel.tables(out, settings)
     html = _render(out, settings, charts, tables)
-    assert html.count('<section class="relationships" id="relationships">') == 1
+    assert html.count('<section class="relationships" id="relationships"') == 1
     for item in [*charts, *tables]:
         assert f'data-id="{item.id}"' in html
     assert "<i>east</i>" not in html and "&lt;i&gt;east&lt;/i&gt;" in html

@@ -141,3 +141,51 @@ def test_histogram_edges_are_bounded():
     edges = histogram_edges(np.random.default_rng(1).normal(size=100_000))
     assert 5 <= len(edges) - 1 <= 40
     assert len(histogram_edges(np.array([1.0, 1.0]))) == 2
+
+
+@pytest.mark.parametrize(
+    "name, centre",
+    [("NumAcc2", 1.2), ("NumAcc3", 1000000.2), ("NumAcc4", 10000000.2)],
+)
+def test_every_value_of_nist_numacc_lies_within_one_sd(name, centre):
+    # NIST StRD univariate NumAcc2/3/4: the centre value then 500 pairs centre ∓ 0.1; certified
+    # mean = centre, sd = 0.1 (from memory of the NIST StRD pages), so every value is exactly
+    # 0 or 1 SD from the mean: the share within 1 SD is 100 %. Before the boundary tolerance
+    # NumAcc3 and NumAcc4 gave 50.05 % (rounding put the ∓0.1 values either side of the SD).
+    x = np.array([centre] + [round(centre - 0.1, 1), round(centre + 0.1, 1)] * 500)
+    s = describe(x)
+    assert s.share_within_1sd == 1.0, name
+    assert s.share_within_2sd == 1.0, name
+
+
+def test_share_within_sd_still_leaves_out_values_clearly_beyond():
+    # Reference: direct count (common practice definition): 1, 2, 3, 4, 100 has mean 22 and
+    # sd ≈ 43.6, so only 100 (78 from the mean) lies beyond 1 SD; a tolerance of a few ulps
+    # cannot move it.
+    x = np.array([1.0, 2.0, 3.0, 4.0, 100.0])
+    s = describe(x)
+    assert s.share_within_1sd == pytest.approx(0.8)
+
+
+@pytest.mark.parametrize("engine_name", ["memory", "stream"])
+def test_numacc3_share_within_one_sd_is_the_same_streamed(tmp_path, monkeypatch, engine_name):
+    # NIST StRD univariate NumAcc3 (certified sd 0.1, every value 0 or 1 SD from the mean;
+    # from memory), read from a CSV by each engine: both count every value within 1 SD.
+    from sitebuild.ingest import read_table
+    from sitebuild.manifest import DatasetSpec, SiteSettings
+    from sitebuild.sections import summaries
+    from sitebuild.streaming import engine
+
+    # Groups up to engine.SMALL values are kept whole and summarised in memory; lower it so
+    # the streamed counting pass is the one tested.
+    monkeypatch.setattr(engine, "SMALL", 100)
+
+    values = ["1000000.2"] + ["1000000.1", "1000000.3"] * 500
+    path = tmp_path / "numacc3.csv"
+    path.write_text("g,v\n" + "".join(f"a,{v}\n" for v in values), encoding="utf-8")
+    spec = DatasetSpec(
+        name="t", file=path.name, path=path, group="g", measures=("v",), engine=engine_name
+    )
+    out = summaries.compute(read_table(spec), SiteSettings(), None, {})
+    shares = {row["group"]: row["share_within_1sd"] for row in out["summaries"]}
+    assert set(shares.values()) == {1.0}

@@ -4,13 +4,20 @@ intervals, equivalence, letters and plain-language findings (results.json key
 
 How the leading test is chosen (the other tests stay on the page as a sensitivity check):
 
-1. Kruskal–Wallis (ranks) when some group is strongly skewed (|sample skewness| > 1, a common
-   rule of thumb) and the smallest group has fewer than 30 values, so means are not yet
-   steadied by averaging.
+1. Kruskal–Wallis (ranks) when the values are strongly skewed beyond sampling noise and the
+   smallest group has fewer than 30 values, so means are not yet steadied by averaging. The
+   evidence is the pooled within-group residuals (each value minus its group's mean): their
+   skewness must exceed ±1 (common practice) and D'Agostino's skewness test must reject
+   symmetry at the 1% level. The skewness of one small group alone is mostly noise (the
+   sample skewness of 15 normal values has an SD of about 0.58), so it does not decide.
 2. Otherwise Welch's ANOVA when the spread differs (Brown–Forsythe p < alpha, or the largest
    SD is more than twice the smallest, common practice) or group sizes are unbalanced
    (largest n over 1.5 × the smallest): the equal-variance ANOVA is unreliable then.
 3. Otherwise the one-way ANOVA: spread and sizes are similar, and it is the most powerful.
+
+Whether the spreads differ is decided by the spread check alone, whichever test leads, and
+is carried in the results (``lead_basis.unequal_spread``): tests that assume equal spread
+(one-way ANOVA, Tukey's HSD) are then not counted as disagreeing.
 
 Pairwise, the leading test follows: Mann–Whitney U with the Hodges–Lehmann shift and Cliff's
 delta after Kruskal–Wallis; Welch's t with the difference in means and Hedges' g otherwise.
@@ -38,6 +45,7 @@ from ..stats.omnibus import kruskal_wallis, one_way_anova, spread_test, welch_an
 from ..stats.pairwise import (
     EXACT_MAX_N,
     Sample,
+    SharedRanks,
     cliffs_delta,
     detectable_difference,
     dominance_counts,
@@ -64,6 +72,14 @@ PERMUTATION_BUDGET = 50_000_000
 # distribution-free interval of that sample), only wider than one from every value.
 HL_SAMPLE_LIMIT = 2_000  # values per group for the Hodges–Lehmann shift (the other tests use all)
 SKEW_LIMIT = 1.0
+# Level of D'Agostino's skewness test on the pooled within-group residuals that must also
+# reject symmetry before the rank test leads: strict, so normal data rarely switch (common
+# practice; the rate is checked by simulation in tests/test_comparisons_section.py).
+SKEW_TEST_ALPHA = 0.01
+# A single group is called strongly skewed only when |G1| > SKEW_LIMIT and also exceeds this
+# many standard errors of G1 under normality (about 0.58 for 15 values), so noise is not
+# reported as shape.
+SKEW_SE_MULTIPLE = 3.0
 SD_RATIO_LIMIT = 2.0
 SIZE_RATIO_LIMIT = 1.5
 SMALL_GROUP = 30
@@ -96,9 +112,37 @@ def _skewness(sample: Sample) -> float | None:
     return _num(stats.skew(sample.sorted, bias=False))
 
 
+def skewness_se(n: int) -> float:
+    """Return the standard error of the adjusted sample skewness G1 of n normal values.
+
+    Notes
+    -----
+    SE(G1) = sqrt(6 n (n − 1) / ((n − 2)(n + 1)(n + 3))) for n ≥ 3.
+
+    References
+    ----------
+    Joanes, D. N. & Gill, C. A. (1998). Comparing measures of sample skewness and kurtosis.
+    The Statistician 47(1), 183–189.
+
+    Examples
+    --------
+    >>> round(skewness_se(15), 3)
+    0.58
+    """
+    return math.sqrt(6.0 * n * (n - 1) / ((n - 2) * (n + 1) * (n + 3))) if n >= 3 else math.inf
+
+
+def _strongly_skewed(n: int, skewness: float | None) -> bool:
+    """|G1| beyond the common-practice limit and beyond SKEW_SE_MULTIPLE standard errors."""
+    if skewness is None or n < SKEW_MIN_N:
+        return False
+    return abs(skewness) > max(SKEW_LIMIT, SKEW_SE_MULTIPLE * skewness_se(n))
+
+
 def _group_rows(groups: Sequence[str], samples: Sequence[Sample]) -> list[dict]:
     rows = []
     for g, s in zip(groups, samples, strict=True):
+        skew = _skewness(s)
         rows.append(
             {
                 "group": g,
@@ -108,40 +152,54 @@ def _group_rows(groups: Sequence[str], samples: Sequence[Sample]) -> list[dict]:
                 "median": _num(np.median(s.sorted)) if s.n else None,
                 "min": _num(s.sorted[0]) if s.n else None,
                 "max": _num(s.sorted[-1]) if s.n else None,
-                "skewness": _skewness(s),
+                "skewness": skew,
+                "strongly_skewed": _strongly_skewed(s.n, skew),
             }
         )
     return rows
 
 
-class _TieTable:
-    """Counts of globally tied values per group, so a pair's tie term Σ(t³ − t) is cheap."""
+def residual_skew_check(samples: Sequence[Sample]) -> dict:
+    """Return the skewness of the pooled within-group residuals and D'Agostino's test of it.
 
-    def __init__(self, samples: Sequence[Sample]):
-        pooled = np.concatenate([s.sorted for s in samples])
-        values, counts = np.unique(pooled, return_counts=True)
-        tied = values[counts > 1]
-        self.any = tied.size > 0
-        self.per_group = []
-        if self.any:
-            for s in samples:
-                idx = np.searchsorted(tied, s.sorted)
-                idx = np.minimum(idx, tied.size - 1)
-                hit = tied[idx] == s.sorted
-                self.per_group.append(np.bincount(idx[hit], minlength=tied.size).astype(float))
+    Notes
+    -----
+    Residuals e_ij = x_ij − mean_i pool the groups' shapes without their differences in
+    centre; G1 is their adjusted sample skewness and the test is scipy.stats.skewtest
+    (D'Agostino's Z for skewness, needs at least 8 values). With k groups the residuals have
+    N − k degrees of freedom, not N; the test ignores that small loss (common practice).
 
-    def term(self, i: int, j: int) -> float:
-        if not self.any:
-            return 0.0
-        t = self.per_group[i] + self.per_group[j]
-        return float(np.sum(t**3 - t))
+    References
+    ----------
+    D'Agostino, R. B., Belanger, A. & D'Agostino, R. B. Jr. (1990). A suggestion for using
+    powerful and informative tests of normality. The American Statistician 44(4), 316–321.
+
+    Examples
+    --------
+    >>> rng = np.random.default_rng(0)
+    >>> check = residual_skew_check([Sample.of(rng.lognormal(0, 1, 15)) for _ in range(5)])
+    >>> check["skewed"]
+    True
+    """
+    residuals = np.concatenate([s.sorted - s.mean for s in samples if s.n])
+    out = {"residual_skewness": None, "skew_test_p": None, "skewed": False}
+    if residuals.size < 8 or not np.ptp(residuals) > 0:
+        return out
+    with np.errstate(all="ignore"):  # cubes of values near 1e75 overflow: then None below
+        skew = _num(stats.skew(residuals, bias=False))
+        p = _num(stats.skewtest(residuals).pvalue)
+    out.update(residual_skewness=skew, skew_test_p=p)
+    out["skewed"] = bool(
+        skew is not None and abs(skew) > SKEW_LIMIT and p is not None and p < SKEW_TEST_ALPHA
+    )
+    return out
 
 
-def _omnibus(samples: list[Sample], ranks: list[np.ndarray]) -> tuple[list[dict], dict]:
+def _omnibus(samples: list[Sample], shared: SharedRanks) -> tuple[list[dict], dict]:
     arrays = [s.sorted for s in samples]
     anova = one_way_anova(arrays)
     welch = welch_anova(arrays)
-    kw = kruskal_wallis(arrays, ranks=ranks)
+    kw = kruskal_wallis(arrays, ranks=shared.ranks, runs=shared.runs)
     spread = spread_test(arrays, center="median")
     rows = [
         {
@@ -186,46 +244,68 @@ def _omnibus(samples: list[Sample], ranks: list[np.ndarray]) -> tuple[list[dict]
     return rows, spread_row
 
 
-def _choose_lead(group_rows: list[dict], spread_row: dict, alpha: float) -> tuple[str, str]:
+def _choose_lead(
+    group_rows: list[dict], spread_row: dict, skew: dict, alpha: float
+) -> tuple[str, str, dict]:
+    """Return the lead test, the sentence saying why, and the decisions as data (lead_basis).
+
+    ``skew`` is :func:`residual_skew_check` of the compared groups.
+    """
     ns = [r["n"] for r in group_rows]
     sds = [r["sd"] for r in group_rows]
-    skews = [
-        (r["group"], r["skewness"])
-        for r in group_rows
-        if r["skewness"] is not None and r["n"] >= SKEW_MIN_N
-    ]
-    worst = max(skews, key=lambda t: abs(t[1]), default=(None, 0.0))
-    if abs(worst[1]) > SKEW_LIMIT and min(ns) < SMALL_GROUP:
-        return TEST_KW, (
-            f"Kruskal–Wallis leads because group '{worst[0]}' is strongly skewed "
-            f"(skewness {worst[1]:.2f}; beyond ±{SKEW_LIMIT:g} by common practice) and the "
-            f"smallest group has only {min(ns)} values, so averages are not yet reliable; "
-            "a rank test does not depend on the shape."
+    ratio = max(sds) / min(sds) if min(sds) > 0 else math.inf
+    spread_p = spread_row["p"]
+    unequal_p = spread_p is not None and spread_p < alpha
+    unequal_ratio = ratio > SD_RATIO_LIMIT
+    size_ratio = max(ns) / min(ns)
+    basis = {
+        "unequal_spread": bool(unequal_p or unequal_ratio),
+        "sd_ratio": _num(ratio),
+        "unbalanced_sizes": bool(size_ratio > SIZE_RATIO_LIMIT),
+        "skewed": bool(skew["skewed"] and min(ns) < SMALL_GROUP),
+        "residual_skewness": skew["residual_skewness"],
+        "skew_test_p": skew["skew_test_p"],
+        "skew_test_alpha": SKEW_TEST_ALPHA,
+    }
+    if basis["skewed"]:
+        return (
+            TEST_KW,
+            (
+                "Kruskal–Wallis leads because the values are strongly skewed within the groups "
+                f"(skewness of the values around their group means "
+                f"{skew['residual_skewness']:.2f}, beyond ±{SKEW_LIMIT:g} by common practice; "
+                f"D'Agostino's skewness test {findings_mod.p_phrase(skew['skew_test_p'])}) and "
+                f"the smallest group has only {min(ns)} values, so averages are not yet "
+                "reliable; a rank test does not depend on the shape."
+            ),
+            basis,
         )
     reasons = []
-    if spread_row["p"] is not None and spread_row["p"] < alpha:
+    if unequal_p:
         reasons.append(
-            f"the Brown–Forsythe test finds unequal spread ({findings_mod.p_phrase(spread_row['p'])})"
+            f"the Brown–Forsythe test finds unequal spread ({findings_mod.p_phrase(spread_p)})"
         )
-    ratio = max(sds) / min(sds) if min(sds) > 0 else math.inf
-    if ratio > SD_RATIO_LIMIT:
+    if unequal_ratio:
         reasons.append(
             f"the largest standard deviation is {ratio:.1f} times the smallest "
             f"(more than {SD_RATIO_LIMIT:g} by common practice)"
         )
-    size_ratio = max(ns) / min(ns)
-    if size_ratio > SIZE_RATIO_LIMIT:
+    if basis["unbalanced_sizes"]:
         reasons.append(f"group sizes are unbalanced ({min(ns)} to {max(ns)} values)")
     if reasons:
-        return TEST_WELCH, (
+        return (
+            TEST_WELCH,
             "Welch's ANOVA leads because "
             + "; ".join(reasons)
-            + ". It does not assume equal spread."
+            + ". It does not assume equal spread.",
+            basis,
         )
-    return TEST_ANOVA, (
+    return (
+        TEST_ANOVA,
         "The one-way ANOVA leads: the groups have similar spread (Brown–Forsythe "
-        f"{findings_mod.p_phrase(spread_row['p'])}, largest to smallest SD {ratio:.1f}), similar sizes and "
-        "no strong skew, so the classic test's assumptions look reasonable."
+        f"{findings_mod.p_phrase(spread_p)}, largest to smallest SD {ratio:.1f}), similar "
+        "sizes and no strong skew, so the classic test's assumptions look reasonable.",
+        basis,
     )
 
 
@@ -380,6 +460,7 @@ def _empty_entry(measure: str, reason: str, excluded: list[dict], group_rows: li
         "measure": measure,
         "lead_test": None,
         "lead_reason": reason,
+        "lead_basis": None,
         "omnibus": [],
         "spread_test": None,
         "pairs": [],
@@ -450,18 +531,17 @@ def _measure_entry(
         entry["findings"] = findings_mod.measure_findings(entry, settings)
         return entry
 
-    # Mid-ranks within the pooled sample, once per measure (Kruskal–Wallis reuses them).
-    pooled = np.concatenate([s.sorted for s in samples])
-    all_ranks = stats.rankdata(pooled)
-    bounds = np.cumsum([0] + [s.n for s in samples])
-    ranks = [all_ranks[bounds[i] : bounds[i + 1]] for i in range(len(samples))]
-    omnibus, spread_row = _omnibus(samples, ranks)
-    lead, lead_reason = _choose_lead(group_rows, spread_row, settings.alpha)
+    # One pooled sort per measure gives the mid-ranks (Kruskal–Wallis reuses them), and every
+    # pair's dominance counts and tie term as lookups (Mann–Whitney, Cliff's delta, the shift).
+    shared = SharedRanks.of(samples)
+    omnibus, spread_row = _omnibus(samples, shared)
+    lead, lead_reason, lead_basis = _choose_lead(
+        group_rows, spread_row, residual_skew_check(samples), settings.alpha
+    )
     rank_lead = lead == TEST_KW
 
     margin = spec.equivalence_margin.get(measure)
     reference = spec.reference
-    ties = _TieTable(samples)
     k = len(samples)
     perm = None
     if spec.permutations > 0 and perm_seed is not None:
@@ -544,13 +624,14 @@ def _measure_entry(
                     names[j],
                     samples[i],
                     samples[j],
-                    ties.term(i, j),
+                    shared.tie_term(i, j),
                     settings,
                     margin,
                     rank_lead,
                     rng,
                     perm,
                     False,
+                    dominance=shared.dominance(i, j),
                 )
             )
 
@@ -628,6 +709,7 @@ def _measure_entry(
         "measure": measure,
         "lead_test": lead,
         "lead_reason": lead_reason,
+        "lead_basis": lead_basis,
         "omnibus": omnibus,
         "spread_test": spread_row,
         "pairs": records,

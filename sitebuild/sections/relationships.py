@@ -15,15 +15,18 @@ from ..stats.correlation import correlation_tables
 from ..stats.curvature import RULE, curvature_check, straight_line
 from ..stats.loess import loess
 from ..stats.multiplicity import METHOD_NAMES, adjust_pvalues
-from . import Chart, DataTable
+from . import PARALLEL_ROWS, Chart, DataTable
 
 SCATTER_LIMIT = 1_500  # points shipped per scatter chart (keeps a 1M-row site under 3 MB with room)
 SCATTER_BUDGET = 16_000  # points shipped over all scatter charts of a page (wide tables)
 WIDE_PAIRS = 45  # more column pairs than this (over 10 columns) makes a table "wide"
 PAIR_SMOOTH_LIMIT = 50_000  # rows used for the measure-against-measure curvature check
+# The two group limits of this section; README "Limits" quotes both (tests/test_audit_fixes.py
+# checks that it does).
 GROUP_LIMIT = 30  # within-group correlation tables for at most this many groups
 # Per-group smooths and heatmaps for at most this many (the largest) groups: the palette has 8
-# colours, and more curves on one scatter cannot be told apart anyway.
+# colours, and more curves on one scatter cannot be told apart anyway. This is the one place
+# the within-group smooth limit is set.
 DRAWN_LIMIT = 8
 METHOD_LABELS = {"pearson": "Pearson r", "spearman": "Spearman rho", "kendall": "Kendall tau-b"}
 
@@ -117,8 +120,8 @@ def _correlations(table, names, settings, rng, chosen: list[int]) -> tuple[list[
                 )
                 if c.reason:
                     note += f"; {c.reason}"
-            elif c.r is not None and c.method == "kendall" and c.reason:
-                note = c.reason
+            elif c.r is not None and c.reason:
+                note = c.reason  # e.g. Kendall's tau-b or Spearman's rho = ±1
             elif c.r is not None and c.ci_low is None:
                 note = "the interval needs at least 4 pairs"
             if c.p is not None and c.ci_low is not None and c.ci_high is not None:
@@ -229,8 +232,8 @@ def _share(r2: float) -> str:
     return "under 1%" if share < 0.5 else f"{share:.0f}%"
 
 
-def _relationship(group, a, b, xv, yv, fit, level, r=None) -> tuple[dict, dict]:
-    line = straight_line(xv, yv, level)
+def _relationship(group, a, b, xv, yv, fit, level, r=None, line=None) -> tuple[dict, dict]:
+    line = straight_line(xv, yv, level) if line is None else line
     if fit.reason or line.reason:
         check = curvature_check(None, None, line.n, None)
         reason = line.reason or fit.reason
@@ -274,6 +277,8 @@ def _smooth_entry(group, x_name, y_name, fit) -> dict:
     note = fit.reason
     if fit.binned and not note:
         note = "fitted on binned data (all rows used)"
+    if fit.fallback:
+        note = f"{note}; {fit.fallback}" if note else fit.fallback
     return {
         "group": group,
         "x": x_name,
@@ -288,6 +293,7 @@ def _smooth_entry(group, x_name, y_name, fit) -> dict:
         "lookup_df": _num(fit.lookup_df),
         "level": fit.level,
         "binned": bool(fit.binned),
+        "fallback": fit.fallback,  # where the local fit became a local mean or blank, and why
         "note": note,
         "points": points,
     }
@@ -353,7 +359,47 @@ def compute(table, settings, rng: np.random.Generator, partial: dict | None = No
             f"With {len(names)} columns, within-group correlations use Pearson and Spearman only "
             "(Kendall for all rows)."
         )
-    correlations, family = _correlations(table, names, settings, rng, drawn if wide else chosen)
+    order, bounds = _scopes(table)
+    level = settings.confidence
+    span = spec.smooth_span
+
+    def smooth_scopes() -> list[list[tuple]]:
+        """Per measure: (label, smooth, straight line) of each scope (all rows, then each
+        drawn group); the scopes' rows are let go as soon as they are fitted."""
+        if not x_name:
+            return []
+        x_all = table.values(x_name)
+        out = []
+        for measure in measures:
+            y_all = table.values(measure)
+            scopes = [(None, x_all, y_all)]
+            xs, ys = x_all[order], y_all[order]
+            for g in drawn:
+                part = slice(bounds[g], bounds[g + 1])
+                scopes.append((table.groups[g], xs[part], ys[part]))
+            fitted = []
+            for label, xv, yv in scopes:
+                keep = ~(np.isnan(xv) | np.isnan(yv))
+                xv, yv = xv[keep], yv[keep]
+                fit = loess(xv, yv, span, spec.smooth_degree, spec.smooth_robust, level)
+                fitted.append((label, fit, straight_line(xv, yv, level)))
+            out.append(fitted)
+        return out
+
+    # The smooths draw no random numbers, so on large tables they are fitted on a second
+    # thread while the correlations (which do) run here; the results are the same either way.
+    if table.n_rows >= PARALLEL_ROWS and x_name:
+        from concurrent.futures import ThreadPoolExecutor
+
+        with ThreadPoolExecutor(max_workers=1) as pool:
+            pending = pool.submit(smooth_scopes)
+            correlations, family = _correlations(
+                table, names, settings, rng, drawn if wide else chosen
+            )
+            smoothed = pending.result()
+    else:
+        correlations, family = _correlations(table, names, settings, rng, drawn if wide else chosen)
+        smoothed = smooth_scopes()
     pearson_r = {}
     for c in correlations:
         if c["method"] == "pearson":
@@ -363,25 +409,14 @@ def compute(table, settings, rng: np.random.Generator, partial: dict | None = No
     relationships: list[dict] = []
     linear_fits: list[dict] = []
     scatter: list[dict] = []
-    order, bounds = _scopes(table)
-    level = settings.confidence
-    span = spec.smooth_span
     if x_name:
         x_all = table.values(x_name)
-        for measure in measures:
+        for measure, fitted in zip(measures, smoothed, strict=True):
             y_all = table.values(measure)
-            scopes = [(None, x_all, y_all)]
-            xs, ys = x_all[order], y_all[order]
-            for g in drawn:
-                part = slice(bounds[g], bounds[g + 1])
-                scopes.append((table.groups[g], xs[part], ys[part]))
-            for label, xv, yv in scopes:
-                keep = ~(np.isnan(xv) | np.isnan(yv))
-                xv, yv = xv[keep], yv[keep]
-                fit = loess(xv, yv, span, spec.smooth_degree, spec.smooth_robust, level)
+            for label, fit, line in fitted:
                 smooths.append(_smooth_entry(label, x_name, measure, fit))
                 r = pearson_r.get((label, x_name, measure))
-                rel, line = _relationship(label, x_name, measure, xv, yv, fit, level, r)
+                rel, line = _relationship(label, x_name, measure, None, None, fit, level, r, line)
                 relationships.append(rel)
                 linear_fits.append(line)
             complete = ~(np.isnan(x_all) | np.isnan(y_all))
@@ -502,6 +537,11 @@ def charts(dataset: dict, settings) -> list[Chart]:
                         "all rows"
                     )
                     + ", and the straight-line fit for all rows."
+                    + "".join(
+                        f" Smooth for {s['group'] or 'all rows'}: {s['fallback']}."
+                        for s in smooths
+                        if s.get("fallback")
+                    )
                 ),
                 spec=scatter_with_smooths(scatter, smooths, line, info["groups"]),
                 table="rel-lines",

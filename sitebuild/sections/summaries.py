@@ -35,7 +35,9 @@ def _sorted_by_group(values: np.ndarray, codes: np.ndarray, n_groups: int):
     """
     keep = ~np.isnan(values)
     kept, kept_codes = values[keep], codes[keep]
-    order = np.argsort(kept_codes, kind="stable")
+    # Small codes as int16 sort by radix (linear); a stable sort gives the same order.
+    narrow = kept_codes.astype(np.int16) if n_groups < 32_000 else kept_codes
+    order = np.argsort(narrow, kind="stable")
     ordered = kept[order]
     bounds = np.searchsorted(kept_codes[order], np.arange(n_groups + 1))
     for index in range(n_groups):

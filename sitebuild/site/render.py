@@ -45,7 +45,9 @@ def _num(value, decimals: int | None = None, digits: int = 4) -> str:
     if not math.isfinite(value):
         return "—"
     if decimals is not None and abs(value) < 1e15:
-        return f"{value:,.{decimals}f}"
+        text = f"{value:,.{decimals}f}"
+        # A tiny negative rounds to "-0.00": zero has no sign on a page.
+        return text[1:] if text.startswith("-") and not text.strip("-0.,") else text
     if value == 0:
         return "0"
     magnitude = math.floor(math.log10(abs(value)))
@@ -222,8 +224,8 @@ def sanitise_notes(text: str) -> str:
         html, raw = f"<pre>{escape(text)}</pre>", {}
     for token, block in raw.items():
         html = html.replace(f"<p>{token}</p>", block).replace(token, block)
-    # Notes sit under the page's own title: demote their headings two levels (h1 -> h3).
-    html = re.sub(r"<(/?)h([1-6])\b", lambda m: f"<{m[1]}h{min(6, int(m[2]) + 2)}", html)
+    # Notes sit under the page's own title: demote their headings one level (h1 -> h2).
+    html = re.sub(r"<(/?)h([1-6])\b", lambda m: f"<{m[1]}h{min(6, int(m[2]) + 1)}", html)
     return nh3.clean(
         html,
         tags=NOTE_TAGS,
@@ -346,6 +348,23 @@ def build_time() -> str | None:
     return moment.strftime("%Y-%m-%d %H:%M UTC")
 
 
+def data_time(manifest: Manifest) -> str | None:
+    """Return the date to put on a build when SOURCE_DATE_EPOCH is not set: the newest
+    modification time of the data files read, so rebuilding the same files gives the same
+    date (a reproducible build) and the date says how recent the data are."""
+    import datetime
+
+    times = []
+    for spec in manifest.datasets:
+        path = Path(spec.path)
+        candidates = [path] if path.is_file() else sorted(path.rglob("*")) if path.is_dir() else []
+        times += [p.stat().st_mtime for p in candidates if p.is_file()]
+    if not times:
+        return None
+    moment = datetime.datetime.fromtimestamp(int(max(times)), tz=datetime.UTC)
+    return "data of " + moment.strftime("%Y-%m-%d %H:%M UTC")
+
+
 def page_parts(ds: dict, settings) -> tuple[dict, dict]:
     """Return (charts by id, tables by id) for one dataset from every section."""
     from ..pipeline import section_modules
@@ -378,9 +397,30 @@ def dataset_page(env, common: dict, ds: dict, spec) -> tuple[dict, dict]:
                 f"KB; notes can be at most {NOTES_MAX_BYTES // 1024} KB — shorten them."
             )
         notes_html = sanitise_notes(spec.notes_path.read_text(encoding="utf-8", errors="replace"))
+    from ..charts.bottom_line import group_dots
+    from . import bottom_line as bl
+    from .together import together_sentences
+
+    rows = bl.bottom_line(ds)
+    settings = common["site"]
+    for row in rows:
+        mini = group_dots(
+            row.points,
+            ds["groups"],
+            row.measure,
+            row.centre,
+            settings.confidence,
+            f"bl-{row.anchor}",
+        )
+        charts[mini.id] = mini
     context = {
         **common,
         "ds": ds,
+        "bottom": rows,
+        "cautions": bl.cautions(ds, settings),
+        "data_use": bl.data_use(ds),
+        "specific": {c["measure"]: bl.specific_findings(c) for c in ds.get("comparisons", [])},
+        "together": together_sentences(ds, settings.alpha),
         "charts": charts,
         "tables": tables,
         "notes_html": notes_html,
@@ -398,6 +438,7 @@ def history_tables(history: list[dict]) -> list[dict]:
             if d["name"] not in names:
                 names.append(d["name"])
     builds = [entry["build"] for entry in history]
+    dates = [entry.get("built_at") for entry in history]
     out = []
     for name in names:
         per_build = [next((d for d in e["datasets"] if d["name"] == name), None) for e in history]
@@ -417,7 +458,7 @@ def history_tables(history: list[dict]) -> list[dict]:
                 ]
                 values.append(found[0] if found else None)
             rows.append((f"Mean {measure}, {group}", values))
-        out.append({"name": name, "builds": builds, "rows": rows})
+        out.append({"name": name, "builds": builds, "dates": dates, "rows": rows})
     return out
 
 
@@ -430,6 +471,35 @@ def common_context(results: dict, manifest: Manifest) -> dict:
         "built_at": build_time(),
         "nav": [(ds["name"], f"{ds['slug']}.html") for ds in results["datasets"]],
     }
+
+
+def overview_context(results: dict, settings) -> dict:
+    """Return what the overview page needs beyond the common context: each dataset's
+    bottom-line rows and data-use line, and the cautions that apply to the site as a whole."""
+    from . import bottom_line as bl
+
+    overview, uses, seen, site_cautions = {}, {}, set(), []
+    for ds in results["datasets"]:
+        overview[ds["slug"]] = bl.bottom_line(ds)
+        uses[ds["slug"]] = bl.data_use(ds)
+        for caution in bl.cautions(ds, settings):
+            # Counts and group names belong to a dataset's page; the overview keeps the
+            # general cautions, each once.
+            if caution.key not in seen and caution.key in bl.SITE_CAUTIONS:
+                seen.add(caution.key)
+                site_cautions.append(caution)
+            elif caution.key == "many-tests" and caution.key not in seen:
+                seen.add(caution.key)
+                site_cautions.append(
+                    bl.Caution(
+                        caution.key,
+                        "Each page runs many tests, so a few results may flag by chance; p-values "
+                        "are adjusted within each stated family, not across the site.",
+                    )
+                )
+    order = {key: i for i, key in enumerate(bl.CAUTION_ORDER)}
+    site_cautions.sort(key=lambda c: order.get(c.key, len(order)))
+    return {"overview": overview, "uses": uses, "site_cautions": site_cautions}
 
 
 def render_site(
@@ -470,7 +540,11 @@ def render_site(
             "changes.html",
             (
                 "changes.html",
-                {"changes": changes, "history": history_tables(results.get("history", []))},
+                {
+                    "changes": changes,
+                    "history": history_tables(results.get("history", [])),
+                    "dates": [entry.get("built_at") for entry in results.get("history", [])],
+                },
             ),
         )
     for name, (template, context) in pages.items():
@@ -482,10 +556,16 @@ def render_site(
     summary = changes["summary"] if changes else None
     files["index.html"] = (
         env.get_template("index.html")
-        .render(**common, current="index.html", chart_specs={}, changes_summary=summary)
+        .render(
+            **common,
+            **overview_context(results, manifest.site),
+            current="index.html",
+            chart_specs={},
+            changes_summary=summary,
+        )
         .encode("utf-8")
     )
-    for asset in ("style.css", "site.js"):
+    for asset in ("style.css", "site.js", "tables.js"):
         files[f"assets/{asset}"] = asset_bytes(manifest, asset)
     files[ASSET_BUNDLE] = bundle if bundle is not None else chart_bundle()
     files["results.json"] = (dumps(results) + "\n").encode("utf-8")

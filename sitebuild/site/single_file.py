@@ -109,6 +109,7 @@ def render_single(
         "current": "index.html",
         "chart_specs": {},
         "changes_summary": changes["summary"] if changes else None,
+        **render.overview_context(results, common["site"]),
     }
     index_html = _main_block(env, "index.html", index_context)
     sections.append((anchors["index.html"][0], _rewrite(index_html, "o--", anchors, files)))
@@ -125,6 +126,7 @@ def render_single(
             "chart_specs": {},
             "changes": changes,
             "history": render.history_tables(results.get("history", [])),
+            "dates": [entry.get("built_at") for entry in results.get("history", [])],
         }
         html = _main_block(env, "changes.html", context)
         sections.append((anchors["changes.html"][0], _rewrite(html, "c--", anchors, files)))
@@ -135,6 +137,7 @@ def render_single(
 
     bundle_text = script_text(files[render.ASSET_BUNDLE].decode("utf-8"))
     site_js = script_text(files["assets/site.js"].decode("utf-8"))
+    tables_js = script_text(files["assets/tables.js"].decode("utf-8"))
     page = env.get_template("single.html").render(
         **{
             **common,
@@ -147,6 +150,7 @@ def render_single(
         chart_specs=chart_specs,
         bundle=Markup(bundle_text),
         site_js=Markup(site_js),
-        script_hashes=" ".join((csp_hash(bundle_text), csp_hash(site_js))),
+        tables_js=Markup(tables_js),
+        script_hashes=" ".join((csp_hash(bundle_text), csp_hash(site_js), csp_hash(tables_js))),
     )
     return page.encode("utf-8")

@@ -212,6 +212,30 @@ def _ranks_from_order(
     return out
 
 
+PERFECT_RANKS_REASON = (
+    "no interval or p-value when the ranks agree perfectly (rho = ±1): the Fisher-z interval "
+    "collapses to a point and the t approximation gives p = 0, neither of which is a real "
+    "uncertainty; read Kendall's tau-b p-value for the same pair"
+)
+
+
+def _perfect_ranks(rx: np.ndarray, ry: np.ndarray) -> bool:
+    """True when two rank vectors (same complete rows) agree or disagree perfectly.
+
+    Exact on the ranks, so a nearly perfect rho of a million values (1 − rho ~ 1e-17, below
+    double precision) is not mistaken for a perfect one.
+    """
+    n = rx.size
+    return bool(np.array_equal(rx, ry) or np.array_equal(rx, (n + 1) - ry))
+
+
+def _perfect_spearman(r: float, n: int, level: float) -> Correlation:
+    """Spearman's rho = ±1: the coefficient, with no interval or p-value and the reason."""
+    return Correlation(
+        "spearman", n, float(np.sign(r)), None, None, None, level, None, PERFECT_RANKS_REASON
+    )
+
+
 def spearman(x, y, level: float = 0.95) -> Correlation:
     """Return Spearman's rho with a Fisher-z interval (Bonett–Wright standard error) and p.
 
@@ -220,6 +244,8 @@ def spearman(x, y, level: float = 0.95) -> Correlation:
     rho is Pearson's r of the average ranks. Interval: tanh(atanh(rho) -/+ z se) with
     se = sqrt((1 + rho^2 / 2) / (n - 3)) (Bonett & Wright 2000). p-value from the same t
     approximation as scipy.stats.spearmanr: t = rho sqrt((n - 2) / (1 - rho^2)), n - 2 df.
+    When the ranks agree perfectly (rho = ±1) the interval and p-value are None with a
+    reason, as for Kendall's tau-b = ±1 (the formulas would give the interval [1, 1], p = 0).
 
     References
     ----------
@@ -237,8 +263,11 @@ def spearman(x, y, level: float = 0.95) -> Correlation:
     if undefined is not None:
         return undefined
     n = int(x.size)
-    inner = pearson(rank_average(x), rank_average(y))
+    rx, ry = rank_average(x), rank_average(y)
+    inner = pearson(rx, ry)
     r = float(inner.r)
+    if _perfect_ranks(rx, ry):
+        return _perfect_spearman(r, n, level)
     se = np.sqrt((1.0 + r * r / 2.0) / (n - 3)) if n > 3 else 0.0
     return _finish("spearman", r, n, level, inner.p, se, "fisher-z, Bonett-Wright SE")
 
@@ -427,6 +456,11 @@ def _scope_table(
                 pairs.append((i, j, _undefined(method, nij, level, f"{which} has no variation")))
                 continue
             rij = float(r[i, j])
+            if method == "spearman" and abs(rij) > 1.0 - 1e-9:
+                rows = ~np.isnan(source[:, i]) & ~np.isnan(source[:, j])
+                if _perfect_ranks(source[rows, i], source[rows, j]):
+                    pairs.append((i, j, _perfect_spearman(rij, nij, level)))
+                    continue
             p = float(_t_pvalue(np.array(rij), np.array(nij)))
             if method == "pearson":
                 se = 1.0 / np.sqrt(nij - 3) if nij > 3 else 0.0
@@ -483,31 +517,38 @@ def correlation_tables(
         key = np.asarray(codes).astype(np.int16 if n_groups < 32_000 else np.int64)
         row_order = np.argsort(key, kind="stable")
         key = key[row_order]
-        data = data[row_order]
         bounds = np.searchsorted(key, np.arange(n_groups + 1))
-    data = np.asfortranarray(data)
-    ranks_all = ranks_group = None  # only Spearman uses ranks
-    if "spearman" in methods:
-        ranks_all = np.full((n, k), np.nan, order="F")
-        ranks_group = np.full((n, k), np.nan, order="F") if grouped else ranks_all
+        # Gathered column by column straight into column-major storage: one copy of the data,
+        # not a row-major copy and then a column-major one.
+        ordered = np.empty((n, k), order="F")
         for j in range(k):
-            column = data[:, j]
-            missing = np.isnan(column)
-            whole = not missing.any()  # then skip the gathers and scatters by row number
-            rows = slice(None) if whole else np.flatnonzero(~missing)
-            values = column if whole else column[rows]
-            order = np.argsort(values)
-            ranks_all[rows, j] = _ranks_from_order(values, order)
-            if grouped:
-                # Within-group order from the overall one by a stable sort on the codes.
-                part = key if whole else key[rows]
-                by_group = order[np.argsort(part[order], kind="stable")]
-                ranks_group[rows, j] = _ranks_from_order(values, by_group, part)
+            np.take(data[:, j], row_order, out=ordered[:, j])
+        data = ordered
+    else:
+        data = np.asfortranarray(data)
+    ranks_all = None  # only Spearman uses ranks
+    if "spearman" in methods:
+        ranks_all = _column_ranks(data)
     out = [_scope_table(data, ranks_all, m, level, None, rng, kendall_limit) for m in methods]
+    del ranks_all  # within groups, ranks restart: each group's are made when it is reached
     if grouped:
         for g in range(n_groups):
             part = slice(bounds[g], bounds[g + 1])
+            ranks = _column_ranks(data[part]) if "spearman" in methods else None
             for m in methods:
-                ranks = None if ranks_group is None else ranks_group[part]
                 out.append(_scope_table(data[part], ranks, m, level, g, rng, kendall_limit))
     return out
+
+
+def _column_ranks(data: np.ndarray) -> np.ndarray:
+    """Return the average ranks of each column over its non-missing rows (NaN where missing)."""
+    n, k = data.shape
+    ranks = np.full((n, k), np.nan, order="F")
+    for j in range(k):
+        column = data[:, j]
+        missing = np.isnan(column)
+        whole = not missing.any()  # then skip the gathers and scatters by row number
+        rows = slice(None) if whole else np.flatnonzero(~missing)
+        values = column if whole else column[rows]
+        ranks[rows, j] = _ranks_from_order(values, np.argsort(values))
+    return ranks

@@ -51,6 +51,9 @@ class LoessFit:
     aicc: float | None
     binned: bool
     reason: str | None = None
+    # Where the local polynomial could not be fitted (too few distinct x values with weight,
+    # e.g. x with a few tied values) and the smooth is a local mean or blank: where and why.
+    fallback: str | None = None
 
 
 @dataclass(frozen=True)
@@ -177,6 +180,7 @@ class _Local:
     a: np.ndarray  # (V, d+1) first row of A^-1 (scaled coordinates)
     norm2: np.ndarray | None  # squared norm of the operator row, sum_i l_i(z)^2
     rows: np.ndarray | None  # full operator rows (exact path, when asked)
+    flat: np.ndarray | None = None  # True where the local polynomial fell back to a local mean
 
 
 def _local_fit(
@@ -273,7 +277,7 @@ def _local_fit(
                 poly += a[row_part, j : j + 1] * up
                 up = up * u
             rows[row_part, col_part] *= poly
-    return _Local(fit, a, norm2, rows)
+    return _Local(fit, a, norm2, rows, bad)
 
 
 def _undefined(n: int, span, degree: int, robust: int, level: float, reason: str) -> LoessFit:
@@ -366,7 +370,13 @@ class _Smoother:
             residuals = self.y - fitted
             trace = float(np.sum(local.a[:n, 0] * moments.mx[:, 0]))
             norms = float(np.sum(local.norm2[:n])) if want_norm else None
-            grid = _Local(local.fit[n:], local.a[n:], local.norm2[n:] if want_norm else None, None)
+            grid = _Local(
+                local.fit[n:],
+                local.a[n:],
+                local.norm2[n:] if want_norm else None,
+                None,
+                local.flat[n:],
+            )
             return fitted, float(residuals @ residuals), trace, norms, grid
         vertices = self.vertices
         local = _local_fit(self.bins, moments, vertices, span, d, n, want_norm)
@@ -397,7 +407,11 @@ class _Smoother:
             norms = float(np.interp(centre, vertices, local.norm2) @ self.bins.count)
         pick = np.searchsorted(vertices, self.grid)
         grid = _Local(
-            local.fit[pick], local.a[pick], local.norm2[pick] if want_norm else None, None
+            local.fit[pick],
+            local.a[pick],
+            local.norm2[pick] if want_norm else None,
+            None,
+            local.flat[pick],
         )
         return fitted, rss, trace, norms, grid
 
@@ -539,6 +553,7 @@ def loess(
         quantile = float(special.ndtri(0.5 + level / 2.0))
     se = np.sqrt(np.maximum(grid.norm2, 0.0)) * (sigma if sigma is not None else np.nan)
     r2 = 1.0 - rss / smoother.tss if smoother.tss > 0 else None
+    fallback = _fallback_note(smoother.grid, grid, degree, x)
     return LoessFit(
         x=smoother.grid,
         fit=grid.fit,
@@ -562,4 +577,36 @@ def loess(
         reason=None
         if sigma is not None
         else "the band is undefined (no residual degrees of freedom)",
+        fallback=fallback,
+    )
+
+
+def _fallback_note(at: np.ndarray, local: _Local, degree: int, x: np.ndarray) -> str | None:
+    """Say where on the grid the local polynomial was replaced by a local mean or left blank.
+
+    With few distinct x values (ties) a neighbourhood can hold weight at fewer than
+    degree + 1 distinct x values; no local line (or parabola) exists there, so the fit is the
+    neighbourhood's weighted mean (a flat step), or blank where nothing has weight. The
+    method changes there, and the results say so rather than change it silently.
+    """
+    flat = local.flat if local.flat is not None else np.zeros(at.size, dtype=bool)
+    blank = ~np.isfinite(local.fit)
+    flat = flat & ~blank
+    if not flat.any() and not blank.any():
+        return None
+    distinct = int(np.unique(x).size)
+    what = "line" if degree == 1 else "parabola"
+    parts = []
+    for mask, how in (
+        (flat, "the smooth is the local weighted mean (flat)"),
+        (blank, "no value has weight, so the smooth is left blank"),
+    ):
+        if mask.any():
+            parts.append(
+                f"at {int(mask.sum())} of {at.size} grid points (x {at[mask].min():.4g} to "
+                f"{at[mask].max():.4g}) {how}"
+            )
+    return (
+        f"x takes only {distinct:,} distinct values, so near some points the neighbourhood "
+        f"has too few of them with weight to fit a local {what}: " + "; ".join(parts)
     )

@@ -3,7 +3,9 @@ Brown–Forsythe test of equal spread, with their effect sizes.
 
 Sums of squares are computed from centred data (two passes: a mean, then deviations from it),
 so data with many constant leading digits keep their precision; the NIST StRD one-way ANOVA
-datasets are the check.
+datasets are the check. Group means are formed from values shifted by a pivot (a value near
+the data, subtracted exactly), so the between-group sums see the small differences between
+the means rather than the rounding of numbers near 1e12 (NIST StRD SmLs07-09).
 """
 
 from __future__ import annotations
@@ -34,8 +36,8 @@ def group_moments(values: np.ndarray) -> GroupMoments:
 
     Notes
     -----
-    mean = Σx/n, then refined by mean += Σ(x - mean)/n; ss = Σ(x - mean)².
-    The refinement step removes most of the rounding error of the first pass.
+    m = Σx/n; d = x − m; mean = m + Σd/n; ss = Σd² − (Σd)²/n (the corrected two-pass
+    algorithm). The correction terms remove most of the rounding error of the first pass.
 
     References
     ----------
@@ -53,13 +55,42 @@ def group_moments(values: np.ndarray) -> GroupMoments:
         return GroupMoments(0, math.nan, math.nan)
     mean = float(x.sum() / n)
     dev = x - mean
-    mean += float(dev.sum() / n)
-    dev = x - mean
-    return GroupMoments(n, mean, float(np.dot(dev, dev)))
+    total = float(dev.sum())
+    # Corrected two-pass sum of squares: the rounded first mean is subtracted exactly, and
+    # (Σ dev)² / n removes what its rounding adds (it matters when the mean itself cannot be
+    # held to the precision of the spread, e.g. values near 1e12 differing by 0.1).
+    ss = max(float(np.dot(dev, dev)) - total * total / n, 0.0)
+    return GroupMoments(n, mean + total / n, ss)
+
+
+def _pivot(groups: Sequence[np.ndarray]) -> float:
+    """A value inside the data's range (the mean of the first non-empty group, as a double).
+
+    x − pivot is exact when x and the pivot are within a factor of two (Sterbenz's lemma), so
+    shifted values keep every digit by which the groups differ, however large the offset.
+    """
+    for g in groups:
+        x = np.asarray(g, dtype=float)
+        if x.size:
+            pivot = float(x.mean())
+            return pivot if math.isfinite(pivot) else 0.0
+    return 0.0
 
 
 def _moments(groups: Sequence[np.ndarray]) -> list[GroupMoments]:
-    moments = [group_moments(g) for g in groups]
+    """Moments of each group; the means are relative to one common pivot.
+
+    Every statistic built here depends only on differences of means and on centred sums of
+    squares, both unchanged by a common shift, so the shifted means are used as they are.
+    The sums of squares come from the unshifted values.
+    """
+    pivot = _pivot(groups)
+    moments = []
+    for g in groups:
+        x = np.asarray(g, dtype=float)
+        own = group_moments(x)  # the spread from the values themselves: shifting could round
+        # away differences far below the pivot's precision (values near 5e-324 beside 1.0)
+        moments.append(GroupMoments(own.n, group_moments(x - pivot).mean, own.ss))
     if len(moments) < 2:
         raise ValueError("need at least two groups")
     if any(m.n < 1 for m in moments):
@@ -221,12 +252,15 @@ class KruskalResult:
 
 
 def kruskal_wallis(
-    groups: Sequence[np.ndarray], ranks: Sequence[np.ndarray] | None = None
+    groups: Sequence[np.ndarray],
+    ranks: Sequence[np.ndarray] | None = None,
+    runs: np.ndarray | None = None,
 ) -> KruskalResult:
     """Return the tie-corrected Kruskal–Wallis H, its df, p-value and epsilon².
 
     ``ranks`` (optional) are the mid-ranks of each group's values within the pooled sample,
-    computed once by the caller and reused; otherwise they are computed here.
+    computed once by the caller and reused; otherwise they are computed here. ``runs``
+    (optional, with ``ranks``) are the sizes of the runs of equal values in the pooled sample.
 
     Notes
     -----
@@ -258,7 +292,10 @@ def kruskal_wallis(
         bounds = np.cumsum(np.concatenate([[0], ns])).astype(int)
         ranks = [all_ranks[bounds[i] : bounds[i + 1]] for i in range(k)]
     sums = np.array([float(np.sum(r)) for r in ranks])
-    _, counts = np.unique(pooled, return_counts=True)
+    if runs is None:
+        _, counts = np.unique(pooled, return_counts=True)
+    else:
+        counts = runs  # the caller's pooled sort already has the sizes of equal-value runs
     tie_term = float(np.sum(counts.astype(float) ** 3 - counts))
     c = 1.0 - tie_term / (float(n) ** 3 - n) if n > 1 else math.nan
     # Σ R_i²/n_i − N(N+1)²/4 written as Σ n_i (R̄_i − (N+1)/2)² keeps precision for large N.

@@ -9,6 +9,10 @@ import numpy as np
 
 SHAPIRO_LIMIT = 5000
 NORMAL_WITHIN = {1: 0.6826894921370859, 2: 0.9544997361036416}  # P(|Z| <= k), Z standard normal
+# A value counts as within k SD when |x − mean| ≤ k·sd up to this many units of rounding of
+# the numbers involved: the mean is rounded to a double (error ~ eps·|mean|) and so is each
+# value, so a value exactly k SD away (NIST StRD NumAcc2-4) may land either side otherwise.
+SD_BOUNDARY_ULPS = 4
 
 
 @dataclass(frozen=True)
@@ -71,6 +75,30 @@ def median_ci_ranks(n: int, level: float) -> tuple[int, int, float] | None:
     upper = n + 1 - lower
     coverage = 1.0 - 2.0 * float(binom.cdf(j, n, 0.5))
     return lower, upper, coverage
+
+
+def within_sd_bound(k: float, sd, mean):
+    """Return the largest |x − mean| still counted as within ``k`` standard deviations.
+
+    Notes
+    -----
+    bound = k·sd + u·eps·(|mean| + k·sd), u = ``SD_BOUNDARY_ULPS``, eps the double precision
+    unit roundoff: deviations are known only to about eps·|x| (the data's own representation
+    error and the rounding of the mean), so a tie with the boundary is resolved as "within".
+    Works on floats and numpy arrays alike.
+
+    References
+    ----------
+    NIST StRD univariate datasets NumAcc2-NumAcc4 (every value exactly 0 or 1 SD from the
+    certified mean), https://www.itl.nist.gov/div898/strd/.
+
+    Examples
+    --------
+    >>> bool(within_sd_bound(1, 0.1, 1000000.2) > 0.1)
+    True
+    """
+    eps = np.finfo(np.float64).eps
+    return k * sd + SD_BOUNDARY_ULPS * eps * (np.abs(mean) + k * sd)
 
 
 def _quantile_sorted(values: np.ndarray, q: float) -> float:
@@ -199,8 +227,12 @@ def describe_sorted(values: np.ndarray, level: float = 0.95, missing: int = 0) -
             reasons[key] = "all values are equal"
         return Summary(**out)
     within = np.abs(deviations)
-    out["share_within_1sd"] = float(np.count_nonzero(within <= sd_s)) / n
-    out["share_within_2sd"] = float(np.count_nonzero(within <= 2 * sd_s)) / n
+    out["share_within_1sd"] = (
+        float(np.count_nonzero(within <= within_sd_bound(1, sd_s, mean_s))) / n
+    )
+    out["share_within_2sd"] = (
+        float(np.count_nonzero(within <= within_sd_bound(2, sd_s, mean_s))) / n
+    )
     biased_var = m2 / n
     m3 = float((squares * deviations).mean())
     m4 = float((squares * squares).mean())

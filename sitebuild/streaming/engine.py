@@ -41,7 +41,13 @@ from ..ingest import (
     display_key,
     unordered_warnings,
 )
-from ..stats.summary import SHAPIRO_LIMIT, Summary, dagostino_pearson, describe_sorted
+from ..stats.summary import (
+    SHAPIRO_LIMIT,
+    Summary,
+    dagostino_pearson,
+    describe_sorted,
+    within_sd_bound,
+)
 from .pieces import MOMENT_FIELDS, CoMoments, Extremes, Moments, Rows, Sample
 from .source import Batch, Source, batches
 
@@ -281,8 +287,13 @@ class ScanTask:
         if self.first:
             d = np.abs(v - plan.mean[lab])
             sd = plan.sd[lab]
-            acc["within"][0] += np.bincount(lab[d <= sd], minlength=labels)
-            acc["within"][1] += np.bincount(lab[d <= 2 * sd], minlength=labels)
+            centre = plan.mean[lab]
+            acc["within"][0] += np.bincount(
+                lab[d <= within_sd_bound(1, sd, centre)], minlength=labels
+            )
+            acc["within"][1] += np.bincount(
+                lab[d <= within_sd_bound(2, sd, centre)], minlength=labels
+            )
             small = plan.collect_all[lab]
             if small.any():
                 acc["small"].append((lab[small], v[small]))
@@ -331,8 +342,9 @@ class ScanTask:
         if self.first:
             d = np.abs(v - plan.mean[lab])
             sd = plan.sd[lab]
-            acc["within"][0, lab] += np.count_nonzero(d <= sd)
-            acc["within"][1, lab] += np.count_nonzero(d <= 2 * sd)
+            centre = plan.mean[lab]
+            acc["within"][0, lab] += np.count_nonzero(d <= within_sd_bound(1, sd, centre))
+            acc["within"][1, lab] += np.count_nonzero(d <= within_sd_bound(2, sd, centre))
             if plan.collect_all[lab] and v.size:
                 acc["small"].append((np.full(v.size, lab, dtype=np.int64), v))
         if plan.fence_low is not None:
