@@ -136,18 +136,34 @@ class Cache:
         if header.get("key") != key or header.get("checksum") != checksum:
             self.notices.append(f"cache entry {path.name} failed its checksum; recomputed it")
             return None
+        secret = signing_key()
+        if secret is None or header.get("signature") != _sign(secret, key, checksum):
+            # Written by someone else (a cache handed over with the project folder): a
+            # rendered page from it could carry script, so it is never used.
+            self.notices.append(
+                f"cache entry {path.name} was not written by this user's sitebuild; recomputed it"
+            )
+            return None
         try:
-            return json.loads(body.decode("utf-8")), checksum
-        except ValueError:
+            payload = json.loads(body.decode("utf-8"))
+        except (ValueError, RecursionError):
             self.notices.append(f"cache entry {path.name} was unreadable; recomputed it")
             return None
+        if kind in SHAPES and not SHAPES[kind](payload):
+            self.notices.append(f"cache entry {path.name} has the wrong shape; recomputed it")
+            return None
+        return payload, checksum
 
     def store(self, kind: str, key: str, payload) -> str:
         """Keep ``payload`` (JSON-ready) under ``key`` and return its checksum; a cache that
         cannot be written is skipped with a notice."""
         body = canonical(payload).encode("utf-8")
         checksum = hashlib.sha256(body).hexdigest()
-        header = canonical({"format": FORMAT, "key": key, "checksum": checksum})
+        secret = signing_key()
+        signature = _sign(secret, key, checksum) if secret is not None else None
+        header = canonical(
+            {"format": FORMAT, "key": key, "checksum": checksum, "signature": signature}
+        )
         try:
             _atomic_write(self._entry(kind, key), header.encode("utf-8") + b"\n" + body)
         except OSError as exc:
@@ -159,24 +175,130 @@ class Cache:
 
     # -- the chart script -----------------------------------------------------------------
     def chart_bundle(self, make) -> bytes:
-        """Return the chart script, from the cache when its vl-convert version matches."""
-        version = vl_convert_version()
-        path = self.root / "assets" / f"vega-bundle-{version}.js"
+        """Return the chart script: the copy kept in the user's own cache folder when its
+        vl-convert version and checksum match, else ``make()`` (and keep that copy).
+
+        The script runs in every reader's browser, so it is never taken from the project
+        folder (whose cache anyone who hands over the folder can edit, checksum and all): only
+        from a folder of the user running the build that no one else can write to.
+        """
+        folder = user_cache_folder()
+        path = folder / f"vega-bundle-{vl_convert_version()}.js"
         check = path.with_suffix(".sha256")
-        if self.enabled:
+        trusted = _private(folder) and _private(path) and _private(check)
+        if self.enabled and trusted:
             try:
                 data = path.read_bytes()
                 if hashlib.sha256(data).hexdigest() == check.read_text().strip():
                     return data
-            except OSError:
+            except (OSError, ValueError):
                 pass
         data = make()
         try:
-            _atomic_write(path, data)
-            _atomic_write(check, hashlib.sha256(data).hexdigest().encode("ascii") + b"\n")
+            folder.mkdir(mode=0o700, parents=True, exist_ok=True)
+            if _private(folder):
+                _atomic_write(path, data)
+                _atomic_write(check, hashlib.sha256(data).hexdigest().encode("ascii") + b"\n")
         except OSError:
-            pass  # the bundle is rebuilt next time; nothing depends on the cache copy
+            pass  # the script is made again next time; nothing depends on the kept copy
         return data
+
+
+def _results_shape(payload) -> bool:
+    from .conforms import conforms
+
+    return conforms(payload, "dataset") and isinstance(payload.get("slug"), str)
+
+
+def _pages_shape(payload) -> bool:
+    """A dataset page and its CSV tables: one ``NAME.html`` and ``tables/*.csv``, all text."""
+    if not isinstance(payload, dict) or not all(
+        isinstance(k, str) and isinstance(v, str) for k, v in payload.items()
+    ):
+        return False
+    pages = [k for k in payload if k.endswith(".html") and "/" not in k]
+    tables = [k for k in payload if k.startswith("tables/") and k.endswith(".csv")]
+    return len(pages) == 1 and len(pages) + len(tables) == len(payload)
+
+
+def _site_shape(payload) -> bool:
+    return (
+        isinstance(payload, dict)
+        and isinstance(payload.get("site_key"), str)
+        and isinstance(payload.get("files"), dict)
+        and isinstance(payload.get("sizes"), dict)
+        and all(isinstance(v, int) for v in payload["sizes"].values())
+    )
+
+
+# What each kind of entry must look like; anything else is a miss (forged or from a bug).
+SHAPES = {"results": _results_shape, "pages": _pages_shape, "sites": _site_shape}
+
+
+def _sign(secret: bytes, key: str, checksum: str) -> str:
+    import hmac
+
+    return hmac.new(secret, f"{key}\0{checksum}".encode("ascii"), "sha256").hexdigest()
+
+
+def signing_key() -> bytes | None:
+    """Return this user's secret for signing cache entries (made on first use, kept in the
+    user's own cache folder, readable only by them), or None when it cannot be kept.
+
+    A project's cache travels with the project folder; only entries signed with this key were
+    written by this user's builds, so a forged entry with a valid checksum is still a miss.
+    """
+    folder = user_cache_folder()
+    path = folder / "signing-key"
+    try:
+        folder.mkdir(mode=0o700, parents=True, exist_ok=True)
+        if not _private(folder):
+            return None
+        try:
+            fd = os.open(path, os.O_RDONLY | getattr(os, "O_NOFOLLOW", 0))
+        except FileNotFoundError:
+            import secrets
+
+            fd = os.open(
+                path, os.O_CREAT | os.O_EXCL | os.O_WRONLY | getattr(os, "O_NOFOLLOW", 0), 0o600
+            )
+            with os.fdopen(fd, "wb") as handle:
+                handle.write(secrets.token_bytes(32))
+            fd = os.open(path, os.O_RDONLY | getattr(os, "O_NOFOLLOW", 0))
+        with os.fdopen(fd, "rb") as handle:
+            if not _private(path):
+                return None
+            secret = handle.read(64)
+    except OSError:
+        return None
+    return secret if len(secret) == 32 else None
+
+
+def user_cache_folder() -> Path:
+    """Return the user's own sitebuild cache folder (outside every project):
+    ``$SITEBUILD_USER_CACHE``, else ``$XDG_CACHE_HOME/sitebuild``, else ``~/.cache/sitebuild``."""
+    if os.environ.get("SITEBUILD_USER_CACHE"):
+        return Path(os.environ["SITEBUILD_USER_CACHE"])
+    base = os.environ.get("XDG_CACHE_HOME") or os.path.join(os.path.expanduser("~"), ".cache")
+    return Path(base) / "sitebuild"
+
+
+def _private(path: Path) -> bool:
+    """Return True when ``path`` is no link, belongs to this user and only they can write it
+    (also True for a file not there yet, whose folder was checked)."""
+    try:
+        info = os.lstat(path)
+    except FileNotFoundError:
+        return True
+    except OSError:
+        return False
+    import stat
+
+    if stat.S_ISLNK(info.st_mode):
+        return False
+    if hasattr(os, "geteuid") and info.st_uid != os.geteuid():
+        return False
+    return not info.st_mode & 0o022
 
 
 def vl_convert_version() -> str:

@@ -5,12 +5,41 @@ from __future__ import annotations
 import argparse
 import json
 import os
+import re
 import signal
 import sys
 import threading
 
 from . import __version__, stopping
 from .errors import SitebuildError
+
+# Control characters (C0 but line end and tab, DEL, C1) from untrusted text (column names,
+# labels, dataset names) would reach the terminal as escape sequences: shown escaped instead.
+_CONTROL = re.compile(r"[\x00-\x08\x0b-\x1f\x7f-\x9f]")
+_CONTROL_OR_LINE_END = re.compile(r"[\x00-\x08\x0a-\x1f\x7f-\x9f]")
+
+
+def terminal_text(text: str, one_line: bool = False) -> str:
+    """Return ``text`` safe to print: control characters (ESC, CR, BEL... and, with
+    ``one_line``, line ends) shown as ``\\x1b``-style escapes, never sent raw.
+
+    Examples
+    --------
+    >>> terminal_text("a\x1b[2Jb")
+    'a\\x1b[2Jb'
+    """
+    pattern = _CONTROL_OR_LINE_END if one_line else _CONTROL
+    return pattern.sub(lambda m: f"\\x{ord(m[0]):02x}", text)
+
+
+def say_line(text: str, **kwargs) -> None:
+    """Print one line of output with untrusted text made safe (see :func:`terminal_text`)."""
+    print(terminal_text(text), **kwargs)
+
+
+def say_error(error) -> None:
+    """Print an error as one ``error:`` line on standard error, control characters escaped."""
+    print(f"error: {terminal_text(str(error), one_line=True)}", file=sys.stderr)
 
 
 def _size(n: int) -> str:
@@ -178,9 +207,10 @@ def parser() -> argparse.ArgumentParser:
 
 def _print_build(report, args) -> None:
     if args.json:
+        # JSON escapes every control character itself.
         print(json.dumps(report.to_json(), sort_keys=True, indent=1, allow_nan=False))
     else:
-        print(format_build(report, quiet=args.quiet))
+        say_line(format_build(report, quiet=args.quiet))
 
 
 def _build(args) -> int:
@@ -205,7 +235,7 @@ def _build(args) -> int:
         _print_build(report, args)
 
     def failed(error: SitebuildError) -> None:
-        print(f"error: {error}", file=sys.stderr)
+        say_error(error)
 
     print("Watching for changes; press Ctrl-C to stop.", file=sys.stderr)
     watch(args.project, once, on_error=failed)
@@ -267,6 +297,16 @@ def _main(argv: list[str] | None) -> int:
     args = parser().parse_args(argv)
     debug = getattr(args, "debug", False) or os.environ.get("SITEBUILD_DEBUG") == "1"
     try:
+        for option in ("project", "folder", "out", "zip", "single_file"):
+            value = getattr(args, option, None)
+            if isinstance(value, str) and "\0" in value:
+                name = (
+                    option if option in ("project", "folder") else "--" + option.replace("_", "-")
+                )
+                raise SitebuildError(
+                    f"the path given as {name} holds a NUL character; paths cannot contain one, "
+                    "so remove it."
+                )
         if args.command == "build":
             return _build(args)
         if args.command == "check":
@@ -276,7 +316,7 @@ def _main(argv: list[str] | None) -> int:
             if args.json:
                 print(json.dumps(report.to_json(), sort_keys=True, indent=1, allow_nan=False))
             else:
-                print(format_check(report))
+                say_line(format_check(report))
         elif args.command == "manifest":
             from .manifest import DATASET_KEYS, SITE_KEYS
             from .manifest_keys import describe
@@ -286,11 +326,11 @@ def _main(argv: list[str] | None) -> int:
             return _new(args)
         return 0
     except SitebuildError as error:
-        if debug:
+        if debug:  # the traceback, and still the exit code of bad input
             import traceback
 
-            traceback.print_exc()  # the traceback, and still the exit code of bad input
-        print(f"error: {error}", file=sys.stderr)
+            traceback.print_exc()
+        say_error(error)
         return error.exit_code
     except KeyboardInterrupt:
         return _interrupted(args)
@@ -299,10 +339,9 @@ def _main(argv: list[str] | None) -> int:
             return _interrupted(args)
         if debug:
             raise
-        print(
-            f"error: unexpected failure ({type(error).__name__}: {error}); the previous site is "
-            "unchanged — run again with --debug to see where, and report it.",
-            file=sys.stderr,
+        say_error(
+            f"unexpected failure ({type(error).__name__}: {error}); the previous site is "
+            "unchanged — run again with --debug to see where, and report it."
         )
         return 1
 

@@ -19,7 +19,13 @@ import numpy as np
 from .cache import file_sha256
 from .errors import SitebuildError
 from .manifest import DatasetSpec
-from .readers.delimited import DELIMITERS, MISSING_TOKENS, sniff_delimiter  # noqa: F401 (re-exported)
+from .readers.delimited import (  # noqa: F401 (re-exported for the engines)
+    DELIMITERS,
+    LINE_END,
+    MISSING_TOKENS,
+    sniff_delimiter,
+    split_lines,
+)
 
 TEXT_SUFFIXES = (".csv", ".tsv", ".txt")
 PARQUET_SUFFIXES = (".parquet", ".pq")
@@ -189,11 +195,19 @@ def _needed(spec: DatasetSpec) -> list[str]:
     return names
 
 
+def _short(text: str, limit: int = 60) -> str:
+    """Return ``text`` cut to ``limit`` characters with '…' when longer (for messages)."""
+    return text if len(text) <= limit else text[: limit - 1] + "…"
+
+
 def _check_columns(spec: DatasetSpec, header: list[str]) -> None:
     seen: dict[str, int] = {}
     for name in header:
         seen[name] = seen.get(name, 0) + 1
-    available = ", ".join(f"'{h}'" for h in header[:40]) + (" ..." if len(header) > 40 else "")
+    # Never the whole header: a file may have a million columns or names a megabyte long.
+    available = ", ".join(f"'{_short(h)}'" for h in header[:40])
+    if len(header) > 40:
+        available += f" and {len(header) - 40:,} more"
     from .readers.tidy import did_you_mean
 
     for role, name in [
@@ -269,21 +283,117 @@ def _label_text(uniques) -> list[str | None]:
     return [None if gone else str(t) for t, gone in zip(text.tolist(), missing, strict=True)]
 
 
+def json_group_labels(spec: DatasetSpec, path: Path) -> list[str | None]:
+    """Return the group label of each JSON Lines record from the value's own text: ``true``,
+    ``1`` and ``1.0`` are three groups (pandas would merge them, as True == 1 == 1.0 in
+    Python); null or an absent key is None. A JSON object or list is refused."""
+    import json
+
+    labels: list[str | None] = []
+    with open(path, encoding="utf-8", errors="replace") as handle:
+        for number, line in enumerate(handle, 1):
+            if not line.strip():
+                continue
+            try:
+                record = json.loads(line, parse_float=str, parse_int=str, parse_constant=str)
+            except ValueError as exc:
+                raise SitebuildError(
+                    f"{spec.file}: not valid JSON Lines at line {number} ({exc}); each line "
+                    "must be one JSON object."
+                ) from None
+            value = record.get(spec.group) if isinstance(record, dict) else None
+            if isinstance(value, dict | list):
+                kind = "an object" if isinstance(value, dict) else "a list"
+                raise SitebuildError(
+                    f"{spec.file}: column '{spec.group}' holds {kind} at line {number}; group "
+                    "values must be text, numbers or true/false; choose another group column."
+                )
+            if isinstance(value, bool):
+                value = "true" if value else "false"
+            labels.append(value)
+    return labels
+
+
+def check_group_type(spec: DatasetSpec, arrow_type) -> None:
+    """Refuse a Parquet group column whose values are not text, numbers, true/false or dates:
+    lists, structs and maps have no label text."""
+    import pyarrow as pa
+
+    if pa.types.is_dictionary(arrow_type):
+        arrow_type = arrow_type.value_type
+    nested = (
+        pa.types.is_list(arrow_type)
+        or pa.types.is_large_list(arrow_type)
+        or pa.types.is_fixed_size_list(arrow_type)
+        or pa.types.is_struct(arrow_type)
+        or pa.types.is_map(arrow_type)
+        or pa.types.is_union(arrow_type)
+    )
+    if nested:
+        raise SitebuildError(
+            f"{spec.file}: column '{spec.group}' is of type {arrow_type}; group values must be "
+            "text, numbers or true/false; choose another group column."
+        )
+
+
+def arrow_group_text(file: str, group: str, array):
+    """Return a Parquet group column (array or chunked array) with binary values decoded as
+    UTF-8 text, refused with a sentence when they are not UTF-8; other types come back as
+    they are."""
+    import pyarrow as pa
+    import pyarrow.compute as pc
+
+    def binary(kind) -> bool:
+        return (
+            pa.types.is_binary(kind)
+            or pa.types.is_large_binary(kind)
+            or pa.types.is_fixed_size_binary(kind)
+        )
+
+    kind = array.type.value_type if pa.types.is_dictionary(array.type) else array.type
+    if not binary(kind):
+        return array
+    if isinstance(array, pa.ChunkedArray):
+        array = array.combine_chunks()
+
+    def text(values):
+        return pc.cast(
+            values if pa.types.is_binary(values.type) else pc.cast(values, pa.binary()), pa.string()
+        )
+
+    try:
+        if pa.types.is_dictionary(array.type):
+            return pa.DictionaryArray.from_arrays(array.indices, text(array.dictionary))
+        return text(array)
+    except (pa.ArrowInvalid, pa.ArrowNotImplementedError):
+        raise SitebuildError(
+            f"{file}: column '{group}' holds bytes that are not UTF-8 text (type {kind}); "
+            "store the group labels as text, or choose another group column."
+        ) from None
+
+
 def unordered_warnings(spec: DatasetSpec, groups: tuple[str, ...]) -> list[str]:
-    """One warning per group the manifest's ``order`` or ``labels`` names but the data does
-    not have."""
+    """Warnings for the groups the manifest's ``order`` names but the data does not have: one
+    per label up to five, then one warning summing up the rest (with the first few names)."""
     present = set(groups)
-    return [
-        f"order names '{label}', which is not a group in column '{spec.group}'; check the "
-        "spelling (labels are compared exactly)."
-        for label in spec.order
-        if label not in present
-    ] + [
+    missing = [label for label in spec.order if label not in present]
+    unknown_codes = [
         f"labels names '{code}', which is not a group in column '{spec.group}'; check the "
         "spelling (codes are compared exactly, so 01 and 1 differ)."
         for code in spec.labels
         if code not in present
     ]
+    if len(missing) > 5:
+        shown = ", ".join(f"'{_short(label, 30)}'" for label in missing[:3])
+        return [
+            f"order names {len(missing):,} labels that are not groups in column "
+            f"'{spec.group}' (such as {shown}); check the spelling (labels are compared exactly)."
+        ] + unknown_codes
+    return [
+        f"order names '{label}', which is not a group in column '{spec.group}'; check the "
+        "spelling (labels are compared exactly)."
+        for label in missing
+    ] + unknown_codes
 
 
 def group_codes(raw, order: tuple[str, ...] = ()) -> tuple[np.ndarray, tuple[str, ...]]:
@@ -314,36 +424,72 @@ def group_codes(raw, order: tuple[str, ...] = ()) -> tuple[np.ndarray, tuple[str
 
 
 HEAD_BYTES = 65536  # bytes read to decode, sniff and find the header of a text file
+MAX_HEADER_BYTES = 64 << 20  # a header line longer than this is refused, not read on
 
 
 @dataclass(frozen=True)
 class Head:
     """The start of a delimited text file: how to read it and its header."""
 
-    text: str  # the decoded first HEAD_BYTES bytes
+    text: str  # the decoded first HEAD_BYTES bytes (more when the header line is longer)
     whole: bool  # the text is the whole file
     encoding: str
     delimiter: str
     header: list[str]
     warnings: list[str]
+    body: bool = False  # something other than blank lines follows the header line
+
+
+def _head_bytes(spec: DatasetSpec, path: Path) -> tuple[bytes, bool]:
+    """Return (the file's first HEAD_BYTES bytes, or up to the end of its first line when that
+    is longer; True when that is the whole file)."""
+    with open(path, "rb") as handle:
+        data = handle.read(HEAD_BYTES)
+        whole = len(data) < HEAD_BYTES
+        while not whole and b"\n" not in data and b"\r" not in data:
+            more = handle.read(HEAD_BYTES)
+            whole = len(more) < HEAD_BYTES
+            data += more
+            if len(data) > MAX_HEADER_BYTES:
+                raise SitebuildError(
+                    f"{spec.file}: the first line is longer than {MAX_HEADER_BYTES >> 20} MB "
+                    "without a line end; check that this is a delimited text file with a header "
+                    "row."
+                )
+    return data, whole
 
 
 def read_head(spec: DatasetSpec, path: Path, suffix: str) -> Head:
     """Decode the start of a text file, sniff its delimiter and check its header's columns
-    (shared by the in-memory reader and the stream engine)."""
-    with open(path, "rb") as handle:
-        head_bytes = handle.read(HEAD_BYTES)
+    (shared by the in-memory reader and the stream engine). Lines end at CR, LF or CRLF."""
+    head_bytes, whole = _head_bytes(spec, path)
     encoding, text, warnings = _decode_head(path, head_bytes, spec.file)
     delimiter = sniff_delimiter(text, suffix)
-    first = text.splitlines()[0] if text.splitlines() else ""
-    header = next(csv.reader([first], delimiter=delimiter), [])
+    lines = split_lines(text)
+    first = lines[0] if lines else ""
+    try:
+        header = next(csv.reader([first], delimiter=delimiter), [])
+    except csv.Error as exc:
+        raise SitebuildError(
+            f"{spec.file}: the header line could not be split into column names ({exc}); "
+            "check that the first line names the columns."
+        ) from None
     if not any(h.strip() for h in header):
         raise SitebuildError(
             f"{spec.file}: the first line is empty; the first line must name the columns."
         )
     header = [h.strip() for h in header]  # ' Kosten (€) ' names the column 'Kosten (€)'
     _check_columns(spec, header)
-    return Head(text, len(head_bytes) < HEAD_BYTES, encoding, delimiter, header, warnings)
+    body = any(line.strip() for line in lines[1:3])
+    return Head(text, whole, encoding, delimiter, header, warnings, body)
+
+
+def no_rows_error(spec: DatasetSpec) -> SitebuildError:
+    """Return the error for a text file with lines after its header that gave no rows."""
+    return SitebuildError(
+        f"{spec.file}: the lines after the header gave no rows; check the line ends and the "
+        "delimiter (export the data again as CSV if in doubt)."
+    )
 
 
 def check_label_lengths(spec: DatasetSpec, groups: tuple[str, ...]) -> None:
@@ -384,7 +530,15 @@ def read_frame(spec: DatasetSpec):
                 f"{spec.file}: not a readable Parquet file ({exc}); export it again."
             ) from None
         _check_columns(spec, list(schema.names))
-        frame = pq.read_table(path, columns=needed).to_pandas()
+        check_group_type(spec, schema.field(spec.group).type)
+        table = pq.read_table(path, columns=needed)
+        group = table.column(spec.group)
+        table = table.set_column(
+            table.schema.get_field_index(spec.group),
+            spec.group,
+            arrow_group_text(spec.file, spec.group, group),
+        )
+        frame = table.to_pandas()
         return frame, "parquet", None, []
     if suffix in JSONL_SUFFIXES:
         try:
@@ -394,7 +548,15 @@ def read_frame(spec: DatasetSpec):
                 f"{spec.file}: not valid JSON Lines ({exc}); each line must be one JSON object."
             ) from None
         _check_columns(spec, [str(c) for c in frame.columns])
-        return frame[needed], "utf-8", None, []
+        frame = frame[needed].copy()
+        labels = json_group_labels(spec, path)
+        if len(labels) != len(frame):
+            raise SitebuildError(
+                f"{spec.file}: not valid JSON Lines (the lines and the rows read do not "
+                "match); each line must be one JSON object."
+            )
+        frame[spec.group] = pd.Series(labels, index=frame.index, dtype=object)
+        return frame, "utf-8", None, []
     if suffix not in TEXT_SUFFIXES:
         raise SitebuildError(
             f"{spec.file}: files ending '{suffix}' are not supported; use .csv, .tsv, .txt, "
@@ -465,6 +627,8 @@ def read_frame(spec: DatasetSpec):
         raise SitebuildError(
             f"{spec.file}: the file has no columns; export it again with a header row."
         ) from None
+    if len(frame) == 0 and head.body:
+        raise no_rows_error(spec)
     frame.columns = header if every_column else [header[p] for p in sorted(positions)]
     extra = None if every_column else first_overlong_line(path, delimiter, len(header))
     if extra is not None:
@@ -553,7 +717,45 @@ def _unclosed_quote_line(path: Path) -> int:
     """Return the line of the quote that opens a field never closed (the file's last quote
     byte, as their count is odd: "" inside a field counts twice)."""
     data = path.read_bytes()
-    return data.count(b"\n", 0, data.rfind(b'"')) + 1
+    return _line_of(data, data.rfind(b'"'))
+
+
+def _line_of(data: bytes, position: int) -> int:
+    """Return the 1-based line of byte ``position``, lines ending at CR, LF or CRLF."""
+    before = data[:position]
+    return before.count(b"\n") + before.count(b"\r") - before.count(b"\r\n") + 1
+
+
+def quotes_outside(raw: np.ndarray, delimiter: str) -> np.ndarray | None:
+    """Return a mask of the bytes outside quoted fields, or None when a quote sits where the
+    vectorised rule cannot place it (the caller then reads the file with a real parser).
+
+    The rule: an odd number of quote bytes before a position means it is inside quotes (""
+    toggles twice, staying put). It holds only when every quote opens a field (at a line
+    start or after a delimiter) or closes one (before a delimiter, a line end, the file's end
+    or the next quote of a "" pair). A stray quote in an unquoted field, an inch mark in
+    ``5"`` say, is data to a CSV reader, and would flip the parity for the rest of the file.
+    """
+    is_quote = raw == 34
+    where = np.flatnonzero(is_quote)
+    if not where.size:
+        return np.ones(raw.size, dtype=bool)
+    # uint8 sums wrap at 256, which keeps the parity and an eighth of the memory.
+    inside_after = (np.cumsum(is_quote, dtype=np.uint8) & 1).astype(bool)
+    opening = inside_after[where]  # this quote leaves us inside: it opens a field
+    separators = np.array([ord(delimiter), 10, 13], dtype=np.uint8)
+    previous = np.where(where > 0, raw[np.maximum(where - 1, 0)], 10)
+    following = np.where(where + 1 < raw.size, raw[np.minimum(where + 1, raw.size - 1)], 10)
+    # An opening quote right after a closing one is the second half of a "" pair.
+    after_close = np.zeros(where.size, dtype=bool)
+    after_close[1:] = (where[1:] == where[:-1] + 1) & ~opening[:-1]
+    start = np.isin(previous, separators) | (where == 0) | after_close
+    if raw[:3].tobytes() == b"\xef\xbb\xbf":
+        start |= where == 3  # a quoted first name right after a UTF-8 byte-order mark
+    end = np.isin(following, separators) | (following == 34) | (where + 1 == raw.size)
+    if not (np.all(start[opening]) and np.all(end[~opening])):
+        return None
+    return ~inside_after | is_quote
 
 
 def first_overlong_line(path: Path, delimiter: str, fields: int) -> int | None:
@@ -561,22 +763,20 @@ def first_overlong_line(path: Path, delimiter: str, fields: int) -> int | None:
 
     pandas' reader, when asked for some columns only, drops extra fields without a word, so
     they are counted here, vectorised over the bytes: a line's fields are its delimiters
-    outside quotes plus one. The delimiter, quote and line end are ASCII, so UTF-8 and
-    Latin-1 text cannot hide them.
+    outside quotes plus one. The delimiter, quote and line ends (CR, LF, CRLF) are ASCII, so
+    UTF-8 and Latin-1 text cannot hide them. Quotes the vectorised rule cannot place (see
+    :func:`quotes_outside`) send the file through the csv module instead.
     """
-    import numpy as np
-
     data = path.read_bytes()
     raw = np.frombuffer(data, dtype=np.uint8)
-    delimiters = raw == ord(delimiter)
-    newlines = raw == 10
-    if b'"' in data:
-        # Inside quotes (RFC 4180) a delimiter or line end is data: an odd number of quote
-        # bytes before a position means it is inside quotes ("" toggles twice, staying put).
-        # uint8 sums wrap at 256, which keeps the parity and an eighth of the memory.
-        outside = (np.cumsum(raw == 34, dtype=np.uint8) & 1) == 0
-        delimiters &= outside
-        newlines &= outside
+    outside = quotes_outside(raw, delimiter)
+    if outside is None:
+        return _overlong_by_parser(data, delimiter, fields)
+    delimiters = (raw == ord(delimiter)) & outside
+    carriage = raw == 13
+    next_is_lf = np.zeros(raw.size, dtype=bool)
+    next_is_lf[:-1] = raw[1:] == 10
+    newlines = ((raw == 10) | (carriage & ~next_is_lf)) & outside
     ends = np.flatnonzero(newlines)
     if ends.size == 0 or ends[-1] != raw.size - 1:
         ends = np.append(ends, raw.size)
@@ -587,7 +787,19 @@ def first_overlong_line(path: Path, delimiter: str, fields: int) -> int | None:
         return None
     # Report the physical line, counting line ends inside quoted fields too.
     start = 0 if over[0] == 0 else int(ends[over[0] - 1]) + 1
-    return int(np.count_nonzero(raw[:start] == 10)) + 1
+    return _line_of(data, start)
+
+
+def _overlong_by_parser(data: bytes, delimiter: str, fields: int) -> int | None:
+    """:func:`first_overlong_line` by the csv module, which reads quotes as pandas does (a quote
+    inside an unquoted field is data). Latin-1 keeps every ASCII byte where it was."""
+    reader = csv.reader(io.StringIO(data.decode("latin-1"), newline=""), delimiter=delimiter)
+    line = 1
+    for row in reader:
+        if len(row) > fields:
+            return line
+        line = reader.line_num + 1
+    return None
 
 
 MAX_LABEL = 200  # characters; every chart, table and CSV repeats a group's label

@@ -10,6 +10,7 @@ import difflib
 import hashlib
 import math
 import re
+import stat
 import tomllib
 import unicodedata
 from dataclasses import dataclass, field
@@ -21,6 +22,8 @@ MANIFEST_NAME = "manifest.toml"
 ADJUST_METHODS = ("holm", "bh", "bonferroni", "none")
 ENGINES = ("auto", "memory", "stream", "dask")
 DEFAULT_OUTPUT = "site_output"
+CONFIDENCE_RANGE = (0.5, 0.9999)
+ALPHA_RANGE = (0.0001, 0.5)
 
 SITE_KEYS = {
     "title": "text",
@@ -289,6 +292,13 @@ def _shown(text: str) -> str:
     return "".join(ch if ch.isprintable() else repr(ch)[1:-1] for ch in text)
 
 
+def _dask_installed() -> bool:
+    """Return True when the optional Dask packages can be imported (found, not imported)."""
+    from importlib.util import find_spec
+
+    return all(find_spec(name) is not None for name in ("dask", "distributed"))
+
+
 def _is_number(value) -> bool:
     return isinstance(value, int | float) and not isinstance(value, bool)
 
@@ -324,6 +334,8 @@ def _project_path(check: _Checker, root: Path, where: str, key: str, raw: str, b
             "give a path inside the project folder, relative to manifest.toml",
             block,
         )
+    if "\0" in raw:
+        check.fail(where, key, "holds a NUL character", "remove it from the path", block)
     resolved = root / relative
     if not _inside(root, resolved):
         check.fail(
@@ -357,9 +369,22 @@ def _project_path(check: _Checker, root: Path, where: str, key: str, raw: str, b
                 block,
             )
         return resolved
-    # A folder is a dataset of Parquet parts (read by the stream or dask engine) or of
-    # same-shaped text files (read as one table).
-    if not (resolved.is_file() or (key == "file" and resolved.is_dir())):
+    # A folder is a dataset of Parquet parts (read by the stream or dask engine). Judged by
+    # type, never by opening: a FIFO would block the build, a device never end.
+    try:
+        mode = resolved.stat().st_mode
+    except OSError:
+        mode = None
+    if mode is not None and not (stat.S_ISREG(mode) or (key == "file" and stat.S_ISDIR(mode))):
+        kind = "a folder" if stat.S_ISDIR(mode) else "not a regular file"
+        check.fail(
+            where,
+            key,
+            f"names '{raw}', which is {kind}",
+            "name a data file" if key == "file" else "name a markdown file",
+            block,
+        )
+    if mode is None:
         check.fail(
             where,
             key,
@@ -511,10 +536,21 @@ def load_manifest(project: str | Path) -> Manifest:
         check.fail("", "site", "must be a table", "write it as [site]")
     _check_types(check, site_table, SITE_KEYS, "[site] ", None)
     site = SiteSettings(**site_table)
-    for key in ("confidence", "alpha"):
+    # Sane ranges, not just (0, 1): a confidence of 0.9999999999999999 overflows the interval
+    # arithmetic, and one below 0.5 or an alpha above 0.5 is a slip, never a design.
+    for key, low, high, example in (
+        ("confidence", CONFIDENCE_RANGE[0], CONFIDENCE_RANGE[1], "0.95"),
+        ("alpha", ALPHA_RANGE[0], ALPHA_RANGE[1], "0.05"),
+    ):
         value = getattr(site, key)
-        if not 0 < value < 1 or math.isnan(value):
-            check.fail("[site] ", key, f"is {value}, outside (0, 1)", "use e.g. 0.95 or 0.05", None)
+        if math.isnan(value) or not low <= value <= high:
+            check.fail(
+                "[site] ",
+                key,
+                f"is {value}, outside {low} to {high}",
+                f"use a value in that range, e.g. {example}",
+                None,
+            )
     if site.adjust not in ADJUST_METHODS:
         close = difflib.get_close_matches(site.adjust.lower(), ADJUST_METHODS, n=1)
         hint = f" (did you mean '{close[0]}'?)" if close else ""
@@ -624,6 +660,15 @@ def load_manifest(project: str | Path) -> Manifest:
             check.fail(label, "engine", f"is '{engine}'", "use one of " + ", ".join(ENGINES), index)
         reading = _reading_keys(check, entry, label, index, measures)
         practice = _practice_keys(check, entry, measures, label, index)
+        if engine == "dask" and not _dask_installed():
+            check.fail(
+                label,
+                "engine",
+                'is "dask", but Dask is not installed',
+                "install the dask extra: pip install 'sitebuild[dask]' (or use engine = "
+                '"stream")',
+                index,
+            )
         spec = DatasetSpec(
             **practice,
             name=name,

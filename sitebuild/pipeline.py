@@ -277,7 +277,7 @@ def check(project: str | Path, out: str | Path | None = None) -> CheckReport:
 
     manifest = load_manifest(project)
     target = resolve_out(manifest, out)
-    check_target(target, manifest)
+    check_target(target, manifest, from_manifest=out is None)
     reports = tuple(_dataset_report(read_table(spec)) for spec in manifest.datasets)
     return CheckReport(manifest=manifest.path, out=target, datasets=reports)
 
@@ -301,6 +301,30 @@ def _report_from_results(ds: dict, reused: bool) -> DatasetReport:
     )
 
 
+READ_TRIES = 3  # reads of a file that keeps changing before the build gives up
+
+
+def file_stamp(path: Path) -> tuple:
+    """Return what changes when a file (or a folder's Parquet parts) is saved again: device,
+    inode, size, modification and change times of each."""
+    paths = [path]
+    if path.is_dir():
+        from .streaming.source import parquet_parts
+
+        paths = parquet_parts(path)
+    stamps = []
+    for item in paths:
+        try:
+            info = item.stat()
+        except OSError:
+            stamps.append((str(item), None))
+            continue
+        stamps.append(
+            (str(item), info.st_dev, info.st_ino, info.st_size, info.st_mtime_ns, info.st_ctime_ns)
+        )
+    return tuple(stamps)
+
+
 def file_digest(path: Path) -> str:
     """Return the hex SHA-256 of a file's bytes (the same digest results.json records); for a
     folder of Parquet parts, the digest of its (name, hash) list."""
@@ -322,12 +346,41 @@ def previous_results(target: Path) -> tuple[dict | None, str | None]:
         data = json.loads(path.read_text(encoding="utf-8"))
         if not isinstance(data, dict) or not isinstance(data.get("datasets"), list):
             raise ValueError("not a results tree")
-    except (OSError, ValueError):
-        return None, (
-            f"{path} could not be read, so this build is compared with nothing and its history "
-            "starts again"
-        )
+    except (OSError, ValueError, RecursionError):
+        return None, damaged_previous(target)
     return data, None
+
+
+def damaged_previous(target: Path) -> str:
+    """Return the notice for a previous results.json that cannot be used."""
+    return (
+        f"{target / 'results.json'} could not be read, so this build is compared with nothing "
+        "and its history starts again"
+    )
+
+
+def _moved(previous: dict | None, computed: dict, manifest: Manifest) -> tuple[bool, dict, list]:
+    """Return (whether any number changed, the changes block, the history) against the
+    previous build's results; raises KeyError, TypeError... when those are damaged."""
+    from .changes import compare, core, extend_history
+    from .conforms import conforms
+    from .site.render import build_time, data_time
+
+    # Equal data compare equal without encoding them again (both came through JSON).
+    numbers_changed = previous is None or core(previous) != computed
+    if not numbers_changed and "changes" in previous and "history" in previous:
+        # Nothing computed moved: the site keeps saying what moved at the last real change.
+        changes, history = previous["changes"], previous["history"][-manifest.site.history :]
+        if not conforms(changes, "changes") or not all(
+            conforms(h, "history_entry") for h in history
+        ):
+            raise ValueError("the previous changes or history are damaged")
+        return numbers_changed, changes, history
+    changes = compare(previous and core(previous), computed)
+    # Dated by SOURCE_DATE_EPOCH, else by the data files' newest modification time.
+    dated = build_time() or data_time(manifest)
+    history = extend_history(previous, computed, manifest.site.history, dated)
+    return numbers_changed, changes, history
 
 
 def render_key(computed_id: str, changes: dict, history: list, manifest: Manifest) -> str:
@@ -363,13 +416,15 @@ def layouts_digest(manifest: Manifest) -> str:
     Layouts are named by their place among the layouts, not by absolute path: the same site
     from an installed copy and from a checkout has the same key.
     """
-    from .site.render import layout_files, packaged_layouts
+    from .site.render import PROJECT_STYLE, layout_files, packaged_layouts
 
     digest = hashlib.sha256()
-    roots = {"packaged": packaged_layouts(), "project": manifest.root / "layouts"}
+    packaged = packaged_layouts()
     for path in layout_files(manifest):
-        where, root = next((k, r) for k, r in roots.items() if path.is_relative_to(r))
-        name = f"{where}/{path.relative_to(root).as_posix()}"
+        if path.is_relative_to(packaged):
+            name = f"packaged/{path.relative_to(packaged).as_posix()}"
+        else:
+            name = f"project/{PROJECT_STYLE}"
         digest.update(name.encode("utf-8") + b"\0" + file_digest(path).encode("ascii"))
     return digest.hexdigest()
 
@@ -413,7 +468,7 @@ class PageMemo:
 
     def get(self, key: str, name: str) -> dict[str, bytes] | None:
         found = self.cache.load_checked("pages", key)
-        if found is None:
+        if found is None or name not in found[0]:
             return None
         self.reused.append(name)
         return {path: text.encode("utf-8") for path, text in found[0].items()}
@@ -444,7 +499,10 @@ def _progress(progress, quiet: bool, started: float):
     if progress is True:
 
         def say(line: str) -> None:
-            print(f"[{time.perf_counter() - started:6.1f} s] {line}", file=sys.stderr, flush=True)
+            from .cli import terminal_text
+
+            stamp = f"[{time.perf_counter() - started:6.1f} s]"
+            print(f"{stamp} {terminal_text(line, one_line=True)}", file=sys.stderr, flush=True)
 
         return say
 
@@ -470,16 +528,15 @@ def build(
     as one HTML file at those paths; ``progress`` is True (lines to stderr) or a function
     taking one line of text; ``quiet`` silences progress.
     """
-    from .changes import compare, core, extend_history
+    from .changes import core
     from .site import publish
-    from .site.render import build_time, data_time
 
     started = time.perf_counter()
     say = _progress(progress, quiet, started)
     timer = Timer()
     manifest = load_manifest(project)
     target = resolve_out(manifest, out)
-    publish.check_target(target, manifest)
+    publish.check_target(target, manifest, from_manifest=out is None)
     zip_path = publish.check_extra_path(Path(zip), target, manifest, "zip") if zip else None
     single_path = (
         publish.check_extra_path(Path(single_file), target, manifest, "single file")
@@ -498,49 +555,74 @@ def build(
             f"{target.parent}: cannot create the folder ({exc.strerror}); choose another --out."
         ) from None
     notices: list[str] = []
-    with publish.Lock(target):
+    with publish.Lock(target) as lock:
+        notices += lock.notices
         datasets, reports, checksums = [], [], []
         for spec in manifest.datasets:
-            with timer.stage("cache"):
-                from .engines import source_digest
+            for _ in range(READ_TRIES):
+                # The file's stamp before hashing and after reading: equal stamps mean the
+                # numbers come from the bytes that were hashed (a file saved in between would
+                # otherwise store its numbers under the old file's hash).
+                stamp = file_stamp(spec.path)
+                with timer.stage("cache"):
+                    from .engines import source_digest
 
-                sha = source_digest(spec)
-                key = dataset_key(sha, spec, manifest.site)
-                found = cache.load_checked("results", key)
-            if found is not None and found[0].get("source", {}).get("sha256") == sha:
-                ds, checksum = found
-                datasets.append(ds)
-                checksums.append(checksum)
-                reports.append(_report_from_results(ds, reused=True))
-                if say:
-                    say(f"{spec.name}: unchanged, results reused")
-                continue
-            from .engines import read_table
-            from .results import clean
+                    sha = source_digest(spec)
+                    key = dataset_key(sha, spec, manifest.site)
+                    found = cache.load_checked("results", key)
+                if found is not None and found[0].get("source", {}).get("sha256") == sha:
+                    if file_stamp(spec.path) != stamp:
+                        continue
+                    ds, checksum = found
+                    report = _report_from_results(ds, reused=True)
+                    if say:
+                        say(f"{spec.name}: unchanged, results reused")
+                    break
+                from .engines import read_table
+                from .results import clean
 
-            if say:
-                say(f"{spec.name}: reading {spec.file}")
-            with one_blas_thread():
-                with timer.stage("read"):
-                    table = read_table(
-                        spec, rng=dataset_rng(manifest.site.seed, spec.name, 99), sha256=sha
-                    )
                 if say:
-                    say(f"{spec.name}: {table.report.rows_used:,} rows ready")
-                ds = clean(analyse(table, manifest, timer, say))
-            stopping.check()  # a stop whose KeyboardInterrupt a library swallowed
-            # Through JSON and back, so fresh and cached results are the very same data.
-            ds = json.loads(canonical(ds))
-            checksums.append(cache.store("results", key, ds))
+                    say(f"{spec.name}: reading {spec.file}")
+                with one_blas_thread():
+                    with timer.stage("read"):
+                        table = read_table(
+                            spec, rng=dataset_rng(manifest.site.seed, spec.name, 99), sha256=sha
+                        )
+                    if say:
+                        say(f"{spec.name}: {table.report.rows_used:,} rows ready")
+                    ds = clean(analyse(table, manifest, timer, say))
+                stopping.check()  # a stop whose KeyboardInterrupt a library swallowed
+                if file_stamp(spec.path) != stamp:
+                    if say:
+                        say(f"{spec.name}: the file changed while it was read; reading it again")
+                    continue
+                # Through JSON and back, so fresh and cached results are the very same data.
+                ds = json.loads(canonical(ds))
+                checksum = cache.store("results", key, ds)
+                report = _dataset_report(table)
+                break
+            else:
+                raise SitebuildError(
+                    f"{spec.file}: the file changed while it was read, {READ_TRIES} times over; "
+                    "build again once it is saved."
+                )
             datasets.append(ds)
-            reports.append(_dataset_report(table))
+            checksums.append(checksum)
+            reports.append(report)
         computed = {"tool_version": __version__, "site": site_block(manifest), "datasets": datasets}
         notices += summarised_notices(datasets)
+        from .site.render import ignored_layouts
+
+        notices += ignored_layouts(manifest)
         previous, notice = previous_results(target)
         if notice:
             notices.append(notice)
-        # Equal data compare equal without encoding them again (both came through JSON).
-        numbers_changed = previous is None or core(previous) != computed
+        try:
+            numbers_changed, changes, history = _moved(previous, computed, manifest)
+        except (KeyError, TypeError, AttributeError, ValueError, IndexError, RecursionError):
+            # A damaged previous results.json must not fail every build (even --fresh ones).
+            notices.append(damaged_previous(target))
+            numbers_changed, changes, history = _moved(None, computed, manifest)
         # Identifies the computed numbers for the render key: each dataset's payload checksum
         # stands for its results, so nothing large is encoded on a no-op rebuild.
         computed_id = hashlib.sha256(
@@ -548,14 +630,6 @@ def build(
                 "utf-8"
             )
         ).hexdigest()
-        if not numbers_changed and "changes" in previous and "history" in previous:
-            # Nothing computed moved: the site keeps saying what moved at the last real change.
-            changes, history = previous["changes"], previous["history"][-manifest.site.history :]
-        else:
-            changes = compare(previous and core(previous), computed)
-            # Dated by SOURCE_DATE_EPOCH, else by the data files' newest modification time.
-            dated = build_time() or data_time(manifest)
-            history = extend_history(previous, computed, manifest.site.history, dated)
         from .results import stamped
 
         results = stamped({**computed, "changes": changes, "history": history})
@@ -585,6 +659,10 @@ def build(
                 bundle = chart_script(render.chart_bundle)
                 memo = PageMemo(cache, manifest, results, checksums)
                 files = render.render_site(results, manifest, bundle=bundle, pages=memo)
+                # Names the project, so its manifest's output may write here again even when
+                # it lies outside the project (see publish.check_target).
+                files[render.MARKER] += (publish.marker_line(manifest) + "\n").encode()
+                files[render.MARKER] += publish.site_listing(files)
                 if say and memo.reused:
                     say(f"pages reused unchanged: {', '.join(memo.reused)}")
                 unchanged = publish.same_as_disk(files, target)
@@ -610,7 +688,9 @@ def build(
             with timer.stage("zip"):
                 if zip_path is not None:
                     data = publish.zip_bytes(files, publish.zip_folder_name(zip_path))
-                    publish.write_file(zip_path, data, "zip")
+                    publish.write_file(
+                        zip_path, data, "zip", published=None if unchanged else target
+                    )
                     zip_bytes = len(data)
                 if single_path is not None:
                     from .site.single_file import render_single
@@ -618,7 +698,9 @@ def build(
                     if say:
                         say("writing the single file")
                     data = render_single(results, manifest, files=files)
-                    publish.write_file(single_path, data, "single file")
+                    publish.write_file(
+                        single_path, data, "single file", published=None if unchanged else target
+                    )
                     single_bytes = len(data)
     notices += cache.notices
     summary = _sizes(sizes)

@@ -15,7 +15,7 @@ from .manifest import MANIFEST_NAME, load_manifest
 
 
 def watched_files(project: str | Path) -> list[Path]:
-    """Return the files a build reads: the manifest, data, notes and the project's layouts.
+    """Return the files a build reads: the manifest, data, notes and the project's style sheet.
 
     When the manifest cannot be read, only the manifest is watched (fixing it rebuilds).
     """
@@ -35,9 +35,8 @@ def watched_files(project: str | Path) -> list[Path]:
             paths += text_parts(spec)  # each file of a folder or glob dataset
         if spec.notes_path is not None:
             paths.append(spec.notes_path)
-    layouts = root / "layouts"
-    if layouts.is_dir():
-        paths += sorted(p for p in layouts.rglob("*") if p.is_file())
+    # The one project layout a build reads (templates and scripts are never used).
+    paths.append(root / "layouts" / "style.css")
     return paths
 
 
@@ -80,6 +79,17 @@ def watch(
             if on_error is None:
                 raise
             on_error(error)
+        except (KeyboardInterrupt, SystemExit):
+            raise
+        except Exception as error:  # noqa: BLE001 - a watch outlives one failed rebuild
+            if on_error is None:
+                raise
+            on_error(
+                SitebuildError(
+                    f"unexpected failure ({type(error).__name__}: {error}); the previous site is "
+                    "unchanged — still watching, run a build with --debug to see where"
+                )
+            )
 
     state = snapshot(watched_files(project))
     run(True)

@@ -299,16 +299,20 @@ def test_m21_notes_outside_the_project(project, capsys):
     assert "notes '/etc/hostname' points outside the project folder" in message
 
 
-@pytest.mark.parametrize("value", ["1.5", "1", "0", "-0.2", "nan", "inf"])
-def test_m22_confidence_outside_the_unit_interval(project, capsys, value):
+@pytest.mark.parametrize(
+    "value", ["1.5", "1", "0", "-0.2", "nan", "inf", "0.9999999999999999", "0.3", "0.99999"]
+)
+def test_m22_confidence_outside_its_sane_range(project, capsys, value):
+    # 0.9999999999999999 overflowed the interval arithmetic ("unexpected failure").
     message = refused(project, capsys, manifest=with_site(f"confidence = {value}"))
-    assert "[site] confidence is" in message and "outside (0, 1)" in message
+    assert "[site] confidence is" in message and "outside 0.5 to 0.9999" in message
     assert "(line 3)" in message
 
 
-def test_m23_alpha_outside_the_unit_interval(project, capsys):
-    message = refused(project, capsys, manifest=with_site("alpha = 5"))
-    assert "[site] alpha is 5, outside (0, 1)" in message
+@pytest.mark.parametrize("value", ["5", "0", "0.6", "1e-9"])
+def test_m23_alpha_outside_its_sane_range(project, capsys, value):
+    message = refused(project, capsys, manifest=with_site(f"alpha = {value}"))
+    assert "[site] alpha is" in message and "outside 0.0001 to 0.5" in message
 
 
 def test_m24_unknown_adjust(project, capsys):
@@ -725,3 +729,130 @@ def test_d28_ten_thousand_groups_are_summarised(tmp_path):
     assert len(page) < 5_000_000
     assert "10,000 groups" in done.stdout and "10,000 groups" in page
     assert len(list(out.rglob("*"))) < 200
+
+
+# ---------------------------------------------------------------------------------------------
+# Round two: types of files, odd paths, big or odd text, failures around the build
+# ---------------------------------------------------------------------------------------------
+
+
+def test_r01_dask_engine_without_dask_names_the_extra(project, capsys, monkeypatch):
+    import importlib.util
+
+    real = importlib.util.find_spec
+    monkeypatch.setattr(
+        importlib.util, "find_spec", lambda name, *a: None if name == "dask" else real(name, *a)
+    )
+    message = refused(project, capsys, manifest=with_dataset(engine='"dask"'))
+    assert "install the dask extra: pip install 'sitebuild[dask]'" in message
+
+
+@pytest.mark.parametrize("kind", ["fifo", "folder", "device"])
+def test_r02_a_data_file_that_is_not_a_regular_file(project, capsys, kind):
+    target = project.root / "data" / "d.csv"
+    target.unlink()
+    if kind == "fifo":
+        os.mkfifo(target)
+    elif kind == "folder":
+        target.mkdir()
+    else:
+        target.symlink_to("/dev/zero")  # a link out of the project: refused before any read
+    message = refused(project, capsys)
+    expected = {"fifo": "not a regular file", "folder": "", "device": "outside the project"}
+    assert expected[kind] in message and "data/d.csv" in message
+
+
+@pytest.mark.parametrize("flag", ["--zip", "--single-file"])
+@pytest.mark.parametrize("kind", ["fifo", "folder", "device"])
+def test_r03_extra_outputs_that_are_not_regular_files(project, capsys, tmp_path, flag, kind):
+    target = {"fifo": tmp_path / "pipe", "folder": tmp_path, "device": Path("/dev/null")}[kind]
+    if kind == "fifo":
+        os.mkfifo(target)
+    code = main(["build", str(project.root), "--out", str(project.out), flag, str(target)])
+    err = capsys.readouterr().err
+    assert code == 2 and ("not a regular file" in err or "folder" in err), err
+    assert snapshot(project.out) == project.before
+
+
+@pytest.mark.parametrize("option", ["--out", "--zip", "--single-file", "project"])
+def test_r04_a_nul_in_a_path_is_refused_as_such(project, capsys, option):
+    args = ["build", str(project.root), "--out", str(project.out)]
+    if option == "project":
+        args[1] += "\0x"
+    else:
+        args += [option, str(project.out.parent / "a\0b")]
+    code = main(args)
+    err = capsys.readouterr().err
+    assert code == 2 and "NUL character" in err and "unexpected" not in err
+
+
+def test_r05_a_nul_in_a_manifest_path(project, capsys):
+    message = refused(project, capsys, manifest=with_dataset(file='"data/d\\u0000.csv"'))
+    assert "NUL" in message
+
+
+def test_r06_twenty_thousand_unknown_order_labels_give_one_warning(project, capsys):
+    labels = ", ".join(f'"L{i}"' for i in range(20_000))
+    built = accepted(project, capsys, manifest=with_dataset(order=f"[{labels}]"))
+    warnings = [w for w in built.ds["source"]["warnings"] if "order names" in w]
+    assert len(warnings) == 1 and "20,000 labels" in warnings[0]
+    assert built.stdout.count("order names") == 1
+
+
+def test_r07_escape_sequences_in_names_are_shown_escaped(project, capsys):
+    data = "g\x1b[31m,v,w\nA\x1b]0;owned\x07,1,2\nA\x1b]0;owned\x07,2,3\nB,3,4\nB,4,5\n"
+    manifest = with_dataset(group='"g\\u001b[31m"', order='["X\\u001b[2J"]')
+    built = accepted(project, capsys, manifest=manifest, files={"data/d.csv": data})
+    assert "\x1b" not in built.stdout and "\\x1b" in built.stdout
+    project.write(files={"data/d.csv": "g,v,w\nA,1,2\n"})
+    code = main(["build", str(project.root), "--out", str(project.out), "--quiet"])
+    err = capsys.readouterr().err
+    assert code == 2 and "\x1b" not in err and "\\x1b" in err
+
+
+def test_r08_debug_keeps_the_exit_code_of_bad_input(project, capsys):
+    project.write(with_site("confidence = 2"))
+    code = main(["--debug", "build", str(project.root), "--out", str(project.out)])
+    err = capsys.readouterr().err
+    assert code == 2 and "Traceback" in err and "error: " in err
+
+
+def test_r09_a_parent_folder_that_cannot_be_written(project, capsys, monkeypatch):
+    from sitebuild.site import publish
+
+    real = os.open
+
+    def no_lock(path, flags, *args):
+        if str(path).endswith(".lock") and flags & os.O_CREAT:
+            raise PermissionError(13, "Permission denied", str(path))
+        return real(path, flags, *args)
+
+    monkeypatch.setattr(publish.os, "open", no_lock)
+    (project.root / "data/d.csv").write_text(GOOD_CSV + "C,1,1\nC,2,2\n")
+    project.before = snapshot(project.out)
+    message = refused(project, capsys)
+    assert "Permission denied" in message and "lock" in message
+
+
+def test_r10_watch_survives_a_rebuild_that_fails_unexpectedly(tmp_path):
+    from sitebuild.watch import watch
+
+    root = write_project(tmp_path / "p", MANIFEST, {"data/d.csv": GOOD_CSV})
+    calls, errors = [], []
+
+    def rebuild(first):
+        calls.append(first)
+        if len(calls) == 2:
+            raise RuntimeError("boom")
+
+    sleeps = []
+
+    def touch(_):
+        # A save, then a quiet poll so the watch sees the change settle.
+        sleeps.append(1)
+        if len(sleeps) % 2:
+            (root / "data/d.csv").write_text(GOOD_CSV + f"C,{len(sleeps)},1\n")
+
+    builds = watch(root, rebuild, on_error=errors.append, max_builds=3, sleep=touch)
+    assert builds == 3 and len(calls) == 3
+    assert len(errors) == 1 and "boom" in str(errors[0])

@@ -165,18 +165,21 @@ def test_dataset_key_depends_on_each_ingredient(project):
     assert cache.dataset_key("a" * 64, spec, replace(site, title="Other")) == base
 
 
-def test_chart_bundle_is_cached_by_version_and_checked(tmp_path):
+def test_chart_bundle_is_cached_by_version_and_checked(tmp_path, monkeypatch):
     calls = []
 
     def make():
         calls.append(1)
         return b"window.vega = {};"
 
+    monkeypatch.setenv("SITEBUILD_USER_CACHE", str(tmp_path / "user"))
     store = cache.Cache(tmp_path / "c")
     assert store.chart_bundle(make) == b"window.vega = {};"
     assert store.chart_bundle(make) == b"window.vega = {};"
     assert len(calls) == 1
-    stored = next((tmp_path / "c" / "assets").glob("*.js"))
+    # Kept in the user's own folder, never in the project's cache (see test_hostile_round2).
+    assert not (tmp_path / "c" / "assets").exists()
+    stored = next((tmp_path / "user").glob("*.js"))
     stored.write_bytes(b"tampered")
     assert store.chart_bundle(make) == b"window.vega = {};"
     assert len(calls) == 2

@@ -28,12 +28,14 @@ def run_cli(*args: str, cwd: Path | None = None) -> subprocess.CompletedProcess:
 
 @pytest.fixture(scope="module")
 def bundle_cache(tmp_path_factory) -> Path:
-    """A project cache holding the chart script, so each CLI build skips making it again."""
+    """An empty project cache; the chart script is made once into the user's own cache
+    folder, so each CLI build skips making it again."""
     from sitebuild.cache import Cache
     from sitebuild.site.render import chart_bundle
 
     folder = tmp_path_factory.mktemp("bundle") / ".sitebuild_cache"
     Cache(folder).chart_bundle(chart_bundle)
+    folder.mkdir(exist_ok=True)
     return folder
 
 

@@ -19,6 +19,7 @@ from pathlib import Path
 import pytest
 
 import sitebuild
+import sitebuild.errors
 from sitebuild.cli import main
 from sitebuild.site import publish
 
@@ -316,3 +317,118 @@ def test_two_builds_at_once(site):
     after = snapshot(out)
     assert after != before and '"C"' in after["results.json"].decode("utf-8")
     assert leftovers(out) == []
+
+
+# -- round two: the copy fallback, a dead build's leftovers, the lock, foreign files ----------
+
+
+def _no_swap(out, real_replace):
+    def no_swap(src, dst):
+        if Path(src).name.startswith(f".{out.name}.new-") or Path(src) == out:
+            raise OSError(errno.EXDEV, os.strerror(errno.EXDEV))
+        return real_replace(src, dst)
+
+    return no_swap
+
+
+def test_a_copy_that_fills_the_disk_half_way_leaves_no_partial_file(site, capsys, monkeypatch):
+    root, out, before = site
+    real_copy = shutil.copyfile
+    copies = []
+
+    def half_copy(src, dst, *args, **kwargs):
+        copies.append(dst)
+        if len(copies) == 3:  # the disk fills in the middle of this file
+            Path(dst).write_bytes(Path(src).read_bytes()[:10])
+            raise OSError(errno.ENOSPC, os.strerror(errno.ENOSPC), str(dst))
+        return real_copy(src, dst, *args, **kwargs)
+
+    monkeypatch.setattr(publish.os, "replace", _no_swap(out, os.replace))
+    monkeypatch.setattr(publish.shutil, "copyfile", half_copy)
+    code, line = failed_build(root, out, capsys)
+    monkeypatch.undo()
+    assert code == 2 and "the previous site is unchanged" in line
+    assert snapshot(out) == before
+    assert not [p for p in out.rglob("*") if ".new-" in p.name], "half-copied files left"
+
+
+def test_the_copy_never_follows_a_link_out_of_the_site(site, capsys, monkeypatch, tmp_path):
+    root, out, _ = site
+    elsewhere = tmp_path / "elsewhere"
+    shutil.move(out / "assets", elsewhere)
+    (out / "assets").symlink_to(elsewhere, target_is_directory=True)
+    outside = snapshot(elsewhere)
+    monkeypatch.setattr(publish.os, "replace", _no_swap(out, os.replace))
+    code, line = failed_build(root, out, capsys)
+    monkeypatch.undo()
+    assert code == 2 and "assets" in line
+    assert snapshot(elsewhere) == outside
+    # Past the folder check too (a link made after it): the copy itself refuses.
+    files = {"assets/x.css": b"x"}
+    staging = tmp_path / "staging"
+    publish.write_tree(files, staging)
+    with pytest.raises(sitebuild.errors.SitebuildError, match="link"):
+        publish._copy_into_place(files, staging, out)
+    assert snapshot(elsewhere) == outside
+
+
+def test_a_build_killed_between_its_renames_is_recovered(site, capsys):
+    root, out, before = site
+    # kill -9 after the old site was set aside and before the new one moved in.
+    dead = subprocess.run([sys.executable, "-c", "import os; print(os.getpid())"],
+                          capture_output=True, text=True)  # fmt: skip
+    aside = out.parent / f".{out.name}.old-{int(dead.stdout)}"
+    os.replace(out, aside)
+    staging = out.parent / f".{out.name}.new-abc123"
+    shutil.copytree(aside, staging)
+    code = main(["build", str(root), "--out", str(out)])
+    captured = capsys.readouterr()
+    assert code == 0, captured.err
+    assert "restored the previous site" in captured.out + captured.err
+    assert "removed" in captured.out + captured.err
+    assert leftovers(out) == []
+    # The history went on from the restored site instead of starting afresh.
+    import json
+
+    history = json.loads((out / "results.json").read_text())["history"]
+    assert len(history) == len(json.loads(before["results.json"])["history"]) + 1
+
+
+def test_a_lock_that_is_a_link_is_never_read_through(site, capsys, tmp_path):
+    root, out, before = site
+    secret = tmp_path / "secret"
+    secret.write_text("pid 1 on host since 00:00:00 password=hunter2\n")
+    (out.parent / f".{out.name}.lock").symlink_to(secret)
+    code, line = failed_build(root, out, capsys)
+    assert code == 3 and "hunter2" not in line and "cannot read" in line
+    assert snapshot(out) == before
+
+
+def test_a_file_someone_saved_in_the_site_is_kept(site, capsys):
+    root, out, _ = site
+    (out / "my notes.txt").write_text("do not lose me")
+    code, line = failed_build(root, out, capsys)
+    assert code == 2 and "my notes.txt" in line and "did not write" in line
+    assert (out / "my notes.txt").read_text() == "do not lose me"
+
+
+def test_a_zip_failing_after_publishing_says_the_site_was_published(
+    site, capsys, monkeypatch, tmp_path
+):
+    root, out, _ = site
+    real = publish.tempfile.mkstemp
+
+    def full(*args, **kwargs):
+        if "zip" in kwargs.get("prefix", ""):
+            raise OSError(errno.ENOSPC, os.strerror(errno.ENOSPC))
+        return real(*args, **kwargs)
+
+    monkeypatch.setattr(publish.tempfile, "mkstemp", full)
+    code = main(
+        ["build", str(root), "--out", str(out), "--quiet", "--zip", str(tmp_path / "s.zip")]
+    )
+    err = capsys.readouterr().err
+    assert code == 2
+    assert f"the site was published to {out}" in err and "only the zip is missing" in err
+    assert "unchanged" not in err
+    assert (out / "results.json").read_text().count('"C"') >= 1  # the new site is there

@@ -95,7 +95,7 @@ def test_duplicate_dataset_names(tmp_path):
 @pytest.mark.parametrize("value", ["1.5", "0", "-0.1"])
 def test_confidence_outside_unit_interval(tmp_path, value):
     message = manifest_error(tmp_path, f"[site]\nconfidence = {value}\n" + BASE)
-    assert "confidence" in message and "outside (0, 1)" in message
+    assert "confidence" in message and "outside 0.5 to 0.9999" in message
 
 
 def test_unknown_adjust_method(tmp_path):
@@ -143,5 +143,5 @@ def test_a_folder_of_parquet_parts_is_accepted_as_a_dataset_file(tmp_path):
 def test_a_folder_is_not_accepted_as_notes(tmp_path):
     root = write_project(tmp_path / "p", BASE + 'notes = "notes"\n', {"data/lines.csv": SIMPLE_CSV})
     (root / "notes").mkdir()
-    with pytest.raises(SitebuildError, match="does not exist"):
+    with pytest.raises(SitebuildError, match="which is a folder"):
         load_manifest(root)

@@ -143,12 +143,88 @@ def _inline_json(data) -> str:
     return Markup(text)
 
 
+# Notes are small texts; a larger file is refused with a sentence (see dataset_page).
+NOTES_MAX_BYTES = 512 * 1024
+# The markdown library's inline parsing takes time proportional to (delimiters in a block) x
+# (the block's length): '[a](' repeated 20,000 times took minutes. A block above this product
+# is shown as the plain text it is, without markdown.
+BLOCK_COST = 200_000
+NOTE_COST = 4_000_000  # for the whole note: past it, only cheap blocks still get markdown
+SMALL_COST = 2_000
+_INLINE = re.compile(r"[\[\]*_`<!(]")
+# Links may go to the web, to mail, or to a place on the same page; nothing else (no
+# //host or \\host share, no relative file, no other scheme).
+_SAFE_LINK = re.compile(r"(?:https?://[^/\\\s]|mailto:[^/\\\s]|#)", re.IGNORECASE)
+
+
+def _block_cost(block: str) -> int:
+    """Return the work the markdown library may spend on a block's inline text, in its own
+    rough units (delimiters x length; a table's rows are parsed one by one)."""
+    lines = block.split("\n")
+    if all(line.lstrip().startswith("|") for line in lines if line.strip()):
+        return max((len(_INLINE.findall(line)) * len(line) for line in lines), default=0)
+    return len(_INLINE.findall(block)) * len(block)
+
+
+def _too_deep(block: str) -> bool:
+    """True when a block nests lists or quotes deeper than the markdown library can recurse."""
+    for line in block.split("\n"):
+        stripped = line.lstrip(" \t")
+        if len(line) - len(stripped) > MAX_INDENT:
+            return True
+        if len(stripped) - len(stripped.lstrip("> \t")) > 2 * MAX_QUOTES:
+            return True
+    return False
+
+
+MAX_INDENT = 64  # columns of leading white space: 16 levels of nested lists
+MAX_QUOTES = 16  # levels of nested quotes ('> > > ...')
+
+
+def _defuse(text: str) -> tuple[str, dict[str, str]]:
+    """Return (the note with each costly or too deeply nested block replaced by a token,
+    token -> that block as escaped HTML); ordinary notes come back unchanged."""
+    from markupsafe import escape
+
+    blocks = re.split(r"(\n[ \t]*\n)", text)
+    raw: dict[str, str] = {}
+    budget = NOTE_COST
+    for i in range(0, len(blocks), 2):
+        block = blocks[i]
+        cost = _block_cost(block)
+        if cost > BLOCK_COST or _too_deep(block) or (cost > SMALL_COST and cost > budget):
+            token = f"sitebuildrawblock{len(raw)}x"
+            raw[token] = f"<p>{escape(block)}</p>"
+            blocks[i] = token
+        else:
+            budget -= cost
+    return "".join(blocks), raw
+
+
+def _link_filter(tag: str, attribute: str, value: str) -> str | None:
+    if tag == "a" and attribute == "href":
+        return value if _SAFE_LINK.match(value.strip()) else None
+    return value
+
+
 def sanitise_notes(text: str) -> str:
-    """Return notes markdown as HTML with only ordinary formatting, links and tables kept."""
+    """Return notes markdown as HTML with only ordinary formatting, links and tables kept.
+
+    Links keep http, https and mailto addresses and in-page anchors only. A note nested too
+    deeply for the markdown library is shown as plain text.
+    """
     import markdown
     import nh3
 
-    html = markdown.markdown(text, extensions=["tables", "sane_lists"], output_format="html")
+    defused, raw = _defuse(text)
+    try:
+        html = markdown.markdown(defused, extensions=["tables", "sane_lists"], output_format="html")
+    except RecursionError:
+        from markupsafe import escape
+
+        html, raw = f"<pre>{escape(text)}</pre>", {}
+    for token, block in raw.items():
+        html = html.replace(f"<p>{token}</p>", block).replace(token, block)
     # Notes sit under the page's own title: demote their headings one level (h1 -> h2).
     html = re.sub(r"<(/?)h([1-6])\b", lambda m: f"<{m[1]}h{min(6, int(m[2]) + 1)}", html)
     return nh3.clean(
@@ -157,16 +233,21 @@ def sanitise_notes(text: str) -> str:
         attributes={"a": {"href", "title"}, "th": {"align"}, "td": {"align"}},
         url_schemes={"http", "https", "mailto"},
         link_rel="noopener noreferrer",
+        attribute_filter=_link_filter,
     )
 
 
-def environment(project_layouts: Path | None = None):
-    """Return the jinja2 environment: autoescape on, project layouts override packaged ones."""
+def environment():
+    """Return the jinja2 environment over the packaged layouts only, autoescape on.
+
+    A project folder never supplies templates: a template is code (jinja2 can reach Python
+    objects from one), and building someone else's project must never run their code. The one
+    thing a project may restyle is ``layouts/style.css`` (see :func:`asset_bytes`).
+    """
     import jinja2
 
-    paths = [str(p) for p in (project_layouts, packaged_layouts()) if p and p.is_dir()]
     env = jinja2.Environment(
-        loader=jinja2.FileSystemLoader(paths),
+        loader=jinja2.FileSystemLoader([str(packaged_layouts())]),
         autoescape=True,
         undefined=jinja2.StrictUndefined,
         keep_trailing_newline=True,
@@ -197,9 +278,11 @@ def chart_bundle() -> bytes:
 
 
 def _csv(table) -> bytes:
+    """Return a table as RFC 4180 CSV (CRLF line ends; a field holding a CR, LF, quote or comma
+    is quoted), UTF-8 with a BOM, every text cell passed through :func:`_csv_cell`."""
     buffer = io.StringIO()
-    writer = csv.writer(buffer, lineterminator="\n")
-    writer.writerow([heading for _, heading in table.columns])
+    writer = csv.writer(buffer, lineterminator="\r\n", quoting=csv.QUOTE_MINIMAL)
+    writer.writerow([_csv_cell(heading) for _, heading in table.columns])
     for row in table.rows:
         writer.writerow(
             ["" if row.get(key) is None else _csv_cell(row.get(key)) for key, _ in table.columns]
@@ -208,14 +291,40 @@ def _csv(table) -> bytes:
     return ("\ufeff" + buffer.getvalue()).encode("utf-8")
 
 
+# Characters that make a cell starting with '+' or '-' an expression rather than a signed
+# number with a unit ("-20 °C", "+5 %" stay as they are; "-A1", "+1+1", "-2*cmd|..." do not).
+_SIGNED_WITH_UNIT = re.compile(r"[+-]\d[\d.,]*(\s+[^=+\-*/^&(),;:!|@\"'<>{}\[\]]*)?")
+
+
 def _csv_cell(value):
+    """Return a cell for a CSV download: floats in full precision; text a spreadsheet would
+    evaluate as a formula gets a leading ``'`` so it stays text.
+
+    A formula is text starting (after leading white space, and with full-width forms folded
+    by NFKC) with ``=``, ``@``, or ``+``/``-`` followed by anything but a number and a unit;
+    text starting with a TAB or CR is guarded too (common practice for CSV injection).
+    """
     if isinstance(value, float):
         return repr(value)
     text = str(value)
-    # Spreadsheets run cells starting with these as formulas; a leading quote keeps them text.
-    if text[:1] in ("=", "+", "-", "@") and not _looks_numeric(text):
+    if needs_formula_guard(text):
         return "'" + text
     return text
+
+
+def needs_formula_guard(text: str) -> bool:
+    """Return True when a spreadsheet opening this cell could evaluate it as a formula."""
+    import unicodedata
+
+    if text[:1] in ("\t", "\r"):
+        return True
+    folded = unicodedata.normalize("NFKC", text).lstrip()
+    first = folded[:1]
+    if first in ("=", "@"):
+        return True
+    if first in ("+", "-"):
+        return not (_looks_numeric(folded) or _SIGNED_WITH_UNIT.fullmatch(folded))
+    return False
 
 
 def _looks_numeric(text: str) -> bool:
@@ -289,6 +398,14 @@ def dataset_page(env, common: dict, ds: dict, spec) -> tuple[dict, dict]:
         tables[key] = dataclasses.replace(table, href=name)
     notes_html = None
     if spec.notes_path is not None:
+        size = spec.notes_path.stat().st_size
+        if size > NOTES_MAX_BYTES:
+            from ..errors import SitebuildError
+
+            raise SitebuildError(
+                f"{spec.notes_path.name}: the notes of dataset '{spec.name}' are {size // 1024:,} "
+                f"KB; notes can be at most {NOTES_MAX_BYTES // 1024} KB — shorten them."
+            )
         notes_html = sanitise_notes(spec.notes_path.read_text(encoding="utf-8", errors="replace"))
     from ..charts.bottom_line import group_dots
     from . import bottom_line as bl
@@ -414,7 +531,7 @@ def render_site(
     """
     from ..results import dumps, schema  # numpy comes with it: keep it off the no-op path
 
-    env = environment(manifest.root / "layouts")
+    env = environment()
     files: dict[str, bytes] = {}
     shown = {
         **results,
@@ -482,17 +599,57 @@ def render_site(
     return files
 
 
+# The only project file a render reads besides data and notes: a style sheet is not code, and
+# the pages' Content-Security-Policy keeps it from loading anything.
+PROJECT_STYLE = "layouts/style.css"
+
+
+def project_style(manifest: Manifest) -> Path | None:
+    """Return the project's ``layouts/style.css`` when it is a regular file inside the project
+    folder (a link leading out of it is ignored, like a data file would be refused)."""
+    path = manifest.root / PROJECT_STYLE
+    try:
+        resolved = path.resolve()
+        resolved.relative_to(manifest.root.resolve())
+    except (OSError, ValueError):
+        return None
+    return resolved if resolved.is_file() else None
+
+
 def asset_bytes(manifest: Manifest, asset: str) -> bytes:
-    """Return a packaged asset (style.css, site.js), or the project's override of it."""
-    override = manifest.root / "layouts" / asset
-    source = override if override.is_file() else packaged_layouts() / asset
-    return source.read_bytes()
+    """Return a packaged asset (style.css, site.js); style.css may come from the project.
+
+    Never a project script: ``site.js`` always comes from the installed package.
+    """
+    if asset == "style.css" and (own := project_style(manifest)) is not None:
+        return own.read_bytes()
+    return (packaged_layouts() / asset).read_bytes()
+
+
+def ignored_layouts(manifest: Manifest) -> list[str]:
+    """Return a notice naming the project's layout files other than ``style.css``, which are
+    never used (templates and scripts from a project folder are code), or an empty list."""
+    folder = manifest.root / "layouts"
+    if not folder.is_dir():
+        return []
+    names = sorted(
+        p.relative_to(manifest.root).as_posix()
+        for p in folder.rglob("*")
+        if (p.is_file() or p.is_symlink())
+        and p.relative_to(manifest.root).as_posix() != PROJECT_STYLE
+    )
+    if not names:
+        return []
+    shown = ", ".join(names[:5]) + (f" and {len(names) - 5} more" if len(names) > 5 else "")
+    return [
+        f"ignored {shown}: a project may restyle its pages with layouts/style.css only; "
+        "templates and scripts from a project folder are never used, as they could run code"
+    ]
 
 
 def layout_files(manifest: Manifest) -> list[Path]:
-    """Return every layout file a render may read: packaged ones and the project's overrides."""
-    found = []
-    for folder in (packaged_layouts(), manifest.root / "layouts"):
-        if folder.is_dir():
-            found += sorted(p for p in folder.rglob("*") if p.is_file())
-    return found
+    """Return every layout file a render may read: the packaged ones and the project's
+    style sheet."""
+    found = sorted(p for p in packaged_layouts().rglob("*") if p.is_file())
+    own = project_style(manifest)
+    return found + ([own] if own is not None else [])

@@ -92,7 +92,7 @@ def render_single(
     """
     if files is None:
         files = render.render_site(results, manifest, bundle=bundle)
-    env = render.environment(manifest.root / "layouts")
+    env = render.environment()
     common = render.common_context(results, manifest)
     # page file → (section anchor, id prefix)
     anchors = {"index.html": ("page-overview", "o--")}

@@ -980,6 +980,7 @@ def read_streamed(spec, rng: np.random.Generator | None = None, runner: Runner |
     from .source import open_source, source_sha256
 
     source = open_source(spec)
+    has_body = source.body
     if rng is None:
         import zlib
 
@@ -1025,6 +1026,10 @@ def read_streamed(spec, rng: np.random.Generator | None = None, runner: Runner |
     check_label_lengths(spec, groups)
     warnings = list(source.warnings)
     if state.rows_read == 0:
+        if has_body:
+            from ..ingest import no_rows_error
+
+            raise no_rows_error(spec)
         warnings.append(f"{spec.file} has a header but no data rows.")
     warnings.extend(unordered_warnings(spec, groups))
     for name in source.numeric:

@@ -26,6 +26,8 @@ from ..ingest import (
     _check_columns,
     _label_text,
     _to_numbers,
+    arrow_group_text,
+    check_group_type,
     read_head,
 )
 from ..manifest import DatasetSpec
@@ -48,6 +50,7 @@ class Source:
     header: tuple[str, ...] = ()
     warnings: tuple[str, ...] = field(default=(), compare=False)
     labels: tuple[str, ...] = ()  # kind "spill": the label of each stored group index
+    body: bool = field(default=False, compare=False)  # text after a CSV header line
 
     @property
     def decimal_comma(self) -> bool:
@@ -115,6 +118,7 @@ def open_source(spec: DatasetSpec) -> Source:
                     f"{spec.file}: {part.name} is not a readable Parquet file ({exc}); export it again."
                 ) from None
             _check_columns(spec, names)
+            check_group_type(spec, pq.read_schema(part).field(spec.group).type)
         return Source(
             kind="parquet",
             parts=tuple(str(p) for p in parts),
@@ -134,6 +138,7 @@ def open_source(spec: DatasetSpec) -> Source:
         encoding=head.encoding,
         header=tuple(head.header),
         warnings=tuple(head.warnings),
+        body=head.body,
     )
 
 
@@ -224,16 +229,16 @@ def _short_rows_batch(rows: list[str], source: Source):
     return pa.table(data)
 
 
-def csv_chunks(path: str, block_bytes: int) -> Iterator[bytes]:
+def csv_chunks(path: str, block_bytes: int, delimiter: str = ",") -> Iterator[bytes]:
     """Yield the file as pieces of whole records, each starting with the header line.
 
-    A piece ends at a newline outside quotes (an even number of '"' before it), so a quoted
-    field holding a newline is never cut. Reading one piece at a time is what bounds memory:
-    pyarrow's own streaming reader reads ahead of its consumer without limit.
+    Lines end at CR, LF or CRLF (the in-memory reader's rule). A piece ends at a line end
+    outside quotes (see :func:`sitebuild.ingest.quotes_outside`), so a quoted field holding a
+    line break is never cut. Reading one piece at a time is what bounds memory: pyarrow's own
+    streaming reader reads ahead of its consumer without limit.
     """
     with open(path, "rb") as handle:
-        header = handle.readline()
-        rest = b""
+        header, rest = _header_line(handle, block_bytes)
         while True:
             data = handle.read(block_bytes)
             if not data:
@@ -241,14 +246,72 @@ def csv_chunks(path: str, block_bytes: int) -> Iterator[bytes]:
                     yield header + rest
                 return
             buffer = rest + data
-            cut = buffer.rfind(b"\n")
-            while cut >= 0 and buffer.count(b'"', 0, cut) % 2:
-                cut = buffer.rfind(b"\n", 0, cut)
+            cut = _last_record_end(buffer, delimiter)
             if cut < 0:
                 rest = buffer  # one record longer than a block: read on
                 continue
             yield header + buffer[: cut + 1]
             rest = buffer[cut + 1 :]
+
+
+def _header_line(handle, block_bytes: int) -> tuple[bytes, bytes]:
+    """Return (the header line with its line end, the bytes read past it)."""
+    data = b""
+    while True:
+        more = handle.read(block_bytes)
+        data += more
+        ends = [i for i in (data.find(b"\n"), data.find(b"\r")) if i >= 0]
+        if ends:
+            end = min(ends)
+            if data[end : end + 2] == b"\r\n":
+                end += 1
+            elif data[end : end + 1] == b"\r" and end + 1 == len(data) and more:
+                continue  # a CR at the end of what was read may be half of a CRLF
+            return data[: end + 1], data[end + 1 :]
+        if not more:
+            return data, b""
+
+
+def _last_record_end(buffer: bytes, delimiter: str) -> int:
+    """Return the position of the last line end outside quotes in ``buffer`` (-1: none). A CR
+    last in the buffer is not taken: the LF of its CRLF may be in the next block."""
+    from ..ingest import quotes_outside
+
+    raw = np.frombuffer(buffer, dtype=np.uint8)
+    outside = quotes_outside(raw, delimiter)
+    if outside is None:
+        return _last_record_end_slow(buffer, delimiter)
+    ends = np.flatnonzero(((raw == 10) | (raw == 13)) & outside)
+    if ends.size and ends[-1] == raw.size - 1 and raw[-1] == 13:
+        ends = ends[:-1]
+    return int(ends[-1]) if ends.size else -1
+
+
+def _last_record_end_slow(buffer: bytes, delimiter: str) -> int:
+    """:func:`_last_record_end` by the CSV rule, byte by byte: a quote opens a quoted field only
+    at the field's start; inside one, "" is a quote and a lone quote closes it."""
+    sep, quote = ord(delimiter), 34
+    last, inside, field_start, i, n = -1, False, True, 0, len(buffer)
+    while i < n:
+        byte = buffer[i]
+        if inside:
+            if byte == quote:
+                if i + 1 < n and buffer[i + 1] == quote:
+                    i += 1
+                else:
+                    inside = False
+        elif byte == quote and field_start:
+            inside, field_start = True, False
+        elif byte == sep:
+            field_start = True
+        elif byte in (10, 13):
+            field_start = True
+            if not (byte == 13 and i + 1 == n):
+                last = i
+        else:
+            field_start = False
+        i += 1
+    return last
 
 
 def _csv_tables(source: Source, batch_rows: int, block_bytes: int = CSV_BLOCK_BYTES) -> Iterator:
@@ -281,7 +344,7 @@ def _csv_tables(source: Source, batch_rows: int, block_bytes: int = CSV_BLOCK_BY
         ),
     }
     try:
-        for chunk in csv_chunks(source.parts[0], block_bytes):
+        for chunk in csv_chunks(source.parts[0], block_bytes, source.delimiter or ","):
             table = pacsv.read_csv(pa.BufferReader(chunk), **options)
             del chunk
             for start in range(0, table.num_rows, batch_rows):
@@ -326,7 +389,10 @@ def batches(
     text = source.kind == "csv"
     first = 0
     for table in tables:
-        labels, index = _group_batch(table.column(source.group))
+        group = table.column(source.group)
+        if not text:
+            group = arrow_group_text(source.file, source.group, group)
+        labels, index = _group_batch(group)
         columns, problems = {}, {}
         for name in source.numeric:
             values, problem = _numbers_batch(

@@ -1,0 +1,92 @@
+"""Whether JSON data has the shape the shipped results schema describes (a small, fast subset
+of JSON Schema: type, enum, const, required, properties, additionalProperties, items, $ref,
+oneOf, anyOf, minimum, maximum), so a cache entry or a previous results.json that was damaged
+or forged is treated as absent instead of failing the build later.
+
+The full jsonschema library takes about a second to import; a no-op rebuild must stay fast.
+"""
+
+from __future__ import annotations
+
+import math
+from functools import lru_cache
+
+_TYPES = {
+    "object": lambda v: isinstance(v, dict),
+    "array": lambda v: isinstance(v, list),
+    "string": lambda v: isinstance(v, str),
+    "boolean": lambda v: isinstance(v, bool),
+    "null": lambda v: v is None,
+    "integer": lambda v: isinstance(v, int) and not isinstance(v, bool),
+    "number": lambda v: isinstance(v, int | float) and not isinstance(v, bool),
+}
+
+
+@lru_cache(maxsize=1)
+def _schema() -> dict:
+    from .results import schema
+
+    return schema()
+
+
+def conforms(value, definition: str | None = None) -> bool:
+    """Return True when ``value`` fits the results schema, or its ``$defs`` entry
+    ``definition`` (such as ``"dataset"`` or ``"changes"``).
+
+    Examples
+    --------
+    >>> conforms({"first_build": True}, "changes")
+    False
+    """
+    root = _schema()
+    node = root if definition is None else root["$defs"][definition]
+    try:
+        return _fits(value, node, root, 0)
+    except RecursionError:
+        return False
+
+
+def _fits(value, node: dict, root: dict, depth: int) -> bool:
+    if depth > 64:  # results are a few levels deep; deeper is damage
+        return False
+    if "$ref" in node:
+        target = root
+        for part in node["$ref"].removeprefix("#/").split("/"):
+            target = target[part]
+        if not _fits(value, target, root, depth + 1):
+            return False
+    kinds = node.get("type")
+    if kinds is not None:
+        kinds = [kinds] if isinstance(kinds, str) else kinds
+        if not any(_TYPES[k](value) for k in kinds):
+            return False
+    if "enum" in node and value not in node["enum"]:
+        return False
+    if "const" in node and value != node["const"]:
+        return False
+    for key in ("oneOf", "anyOf"):
+        if key in node and not any(_fits(value, n, root, depth + 1) for n in node[key]):
+            return False
+    if isinstance(value, int | float) and not isinstance(value, bool):
+        if isinstance(value, float) and not math.isfinite(value):
+            return False
+        if "minimum" in node and value < node["minimum"]:
+            return False
+        if "maximum" in node and value > node["maximum"]:
+            return False
+    if isinstance(value, dict):
+        if any(k not in value for k in node.get("required", ())):
+            return False
+        properties = node.get("properties", {})
+        extra = node.get("additionalProperties", True)
+        for k, v in value.items():
+            if k in properties:
+                if not _fits(v, properties[k], root, depth + 1):
+                    return False
+            elif extra is False:
+                return False
+            elif isinstance(extra, dict) and not _fits(v, extra, root, depth + 1):
+                return False
+    if isinstance(value, list) and isinstance(node.get("items"), dict):
+        return all(_fits(v, node["items"], root, depth + 1) for v in value)
+    return True
