@@ -25,8 +25,8 @@ def terminal_text(text: str, one_line: bool = False) -> str:
 
     Examples
     --------
-    >>> terminal_text("a\x1b[2Jb")
-    'a\\x1b[2Jb'
+    >>> print(terminal_text("a\x1b[2Jb"))
+    a\\x1b[2Jb
     """
     pattern = _CONTROL_OR_LINE_END if one_line else _CONTROL
     return pattern.sub(lambda m: f"\\x{ord(m[0]):02x}", text)

@@ -578,7 +578,7 @@ def test_d15_measure_all_one_value(project, capsys):
 def test_d16_a_single_group(project, capsys):
     built = accepted(project, capsys, files={"data/d.csv": "g,v,w\nA,1,2\nA,2,3\nA,4,4\n"})
     assert built.ds["groups"] == ["A"]
-    assert "into 1 group;" in built.page
+    assert "1 group of" in built.page
     if "comparisons" in built.ds:
         assert all(not c["pairs"] for c in built.ds["comparisons"])
 

@@ -222,6 +222,9 @@ def charts(ds: dict, settings: SiteSettings) -> list[Chart]:
         dist = next(d for d in ds["distributions"] if d["measure"] == measure)
         fmt = draw.value_format(rows)
         look = {"group_by": ds.get("group_by"), "reference": _reference(ds, measure)}
+        # Colours and shapes follow the order of every group; past the drawable limit only
+        # the drawn ones get a style (a scale of 10,000 entries would outweigh the page).
+        palette = ds["groups"] if len(ds["groups"]) <= MAX_CHART_GROUPS else shown
         out.append(
             Chart(
                 id=f"sum-{mi}-means",
@@ -231,7 +234,7 @@ def charts(ds: dict, settings: SiteSettings) -> list[Chart]:
                     "Overlap is not a test: two intervals can overlap while the groups differ; "
                     "the comparisons below say which differ." + _extremes(rows)
                 ),
-                spec=draw.mean_intervals(rows, ds["groups"], measure, **look),
+                spec=draw.mean_intervals(rows, palette, measure, **look),
                 table=f"sum-{mi}",
             )
         )
@@ -243,7 +246,7 @@ def charts(ds: dict, settings: SiteSettings) -> list[Chart]:
                     f"Histograms of {measure} per group on shared bins, as the share of each "
                     "group's values, so groups of different sizes compare fairly."
                 ),
-                spec=draw.histograms(dist, shown, ds["groups"], measure, fmt, **look),
+                spec=draw.histograms(dist, shown, palette, measure, fmt, **look),
                 table=f"sum-{mi}",
             )
         )
@@ -258,7 +261,7 @@ def charts(ds: dict, settings: SiteSettings) -> list[Chart]:
                     "extreme per side and group; the table counts them all)."
                 ),
                 spec=with_limits(
-                    draw.boxes(dist, shown, ds["groups"], measure, fmt, **look),
+                    draw.boxes(dist, shown, palette, measure, fmt, **look),
                     next((c for c in ds.get("capability", []) if c["measure"] == measure), None),
                 ),
                 table=f"sum-{mi}",

@@ -25,6 +25,7 @@ SKEWED_MEAN_CAUTION = (
 )
 MAX_GROUPS_NAMED = 12
 
+LEFT_OUT_LISTED = 10  # groups named one by one in a measure's findings; the rest are counted
 CAUTIONS = (
     "Unless the groups were formed by random assignment, a difference between them shows an "
     "association, not that belonging to a group causes it; other differences between the "
@@ -229,10 +230,17 @@ def measure_findings(entry: dict, settings) -> list[str]:
     out: list[str] = []
     measure = entry["measure"]
     decimals = measure_decimals(entry)
-    for e in entry.get("not_comparable", []):
+    left_out = entry.get("not_comparable", [])
+    for e in left_out[:LEFT_OUT_LISTED]:
         out.append(
             f"Group '{e['group']}' is left out of the comparisons of '{measure}': {e['reason']}."
             + _constant_placement(e, entry.get("groups", []), decimals)
+        )
+    if len(left_out) > LEFT_OUT_LISTED:
+        more = len(left_out) - LEFT_OUT_LISTED
+        out.append(
+            f"{more:,} more group{'s are' if more != 1 else ' is'} left out of the comparisons "
+            f"of '{measure}' for the same kinds of reason; results.json lists each one."
         )
     if entry.get("lead_test") is None:
         out.insert(0, f"'{measure}' could not be compared between groups: {entry['reason']}.")
