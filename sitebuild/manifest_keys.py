@@ -82,6 +82,16 @@ KEYS: tuple[KeyHelp, ...] = (
     KeyHelp("datasets", "date_format", "ISO 8601", 'layout of dates in x, e.g. "%d/%m/%Y"'),
     KeyHelp("datasets", "table", "none", "SQLite: the table to read"),
     KeyHelp("datasets", "query", "none", "SQLite: a SELECT query to read (opened read-only)"),
+    KeyHelp("datasets", "better", "{}", 'per measure, "lower" or "higher": which way is good'),
+    KeyHelp("datasets", "labels", "{}", 'names shown for group codes, e.g. { "01" = "clay" }'),
+    KeyHelp(
+        "datasets",
+        "limits",
+        "{}",
+        "spec limits per measure: [lower, upper], { lower = .. } or { upper = .. }",
+    ),
+    KeyHelp("datasets", "target", "{}", "the value aimed at per measure, inside the limits"),
+    KeyHelp("datasets", "time_unit", "none", "x is time counted in this unit (day, week...)"),
 )
 
 
