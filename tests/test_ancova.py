@@ -9,14 +9,13 @@ from __future__ import annotations
 
 import numpy as np
 import pandas as pd
+import pingouin
 import pytest
+import statsmodels.formula.api as sm_formula
+import statsmodels.stats.anova as sm_anova
 
 from sitebuild.stats.ancova import XYMoments, ancova, slope_check
 from sitebuild.streaming.pieces import CoMoments
-
-sm_formula = pytest.importorskip("statsmodels.formula.api")
-sm_anova = pytest.importorskip("statsmodels.stats.anova")
-pingouin = pytest.importorskip("pingouin")
 
 REL = 1e-6
 

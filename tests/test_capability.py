@@ -11,11 +11,10 @@ import math
 
 import numpy as np
 import pytest
+import statsmodels.stats.proportion as proportion
 from scipy import stats
 
 from sitebuild.stats.capability import capability, wilson_interval
-
-proportion = pytest.importorskip("statsmodels.stats.proportion")
 
 
 @pytest.mark.parametrize(

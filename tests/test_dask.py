@@ -8,6 +8,7 @@ from __future__ import annotations
 
 import dataclasses
 
+import distributed
 import numpy as np
 import pandas as pd
 import pytest
@@ -18,8 +19,6 @@ from sitebuild.engines.dask import DaskRunner, read_with_dask
 from sitebuild.manifest import DatasetSpec, SiteSettings
 from sitebuild.results import clean
 from sitebuild.sections import summaries
-
-distributed = pytest.importorskip("distributed")
 
 pytestmark = pytest.mark.slow
 

@@ -2,8 +2,6 @@
 
 from __future__ import annotations
 
-import pytest
-
 from sitebuild import ingest
 
 GB = 1 << 30
@@ -37,7 +35,7 @@ def test_unreadable_memory_size_falls_back_to_a_fixed_limit(monkeypatch):
 
 
 def test_engine_for_counts_the_columns_it_will_read(tmp_path, monkeypatch):
-    pa = pytest.importorskip("pyarrow")
+    import pyarrow as pa
     import pyarrow.parquet as pq
 
     from sitebuild.manifest import DatasetSpec

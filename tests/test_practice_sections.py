@@ -8,6 +8,8 @@ import json
 import numpy as np
 import pandas as pd
 import pytest
+import statsmodels.formula.api as smf
+import statsmodels.stats.anova as sm_anova
 from scipy import stats
 
 import sitebuild
@@ -15,9 +17,6 @@ from sitebuild.ingest import read_table
 from sitebuild.manifest import load_manifest
 
 from conftest import EXAMPLE, write_project
-
-smf = pytest.importorskip("statsmodels.formula.api")
-sm_anova = pytest.importorskip("statsmodels.stats.anova")
 
 
 def _results(site) -> dict:
