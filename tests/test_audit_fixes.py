@@ -7,12 +7,12 @@ from __future__ import annotations
 import numpy as np
 import pytest
 from scipy import stats
+from test_comparisons_section import make_table
 
 from sitebuild.manifest import SiteSettings
 from sitebuild.sections import comparisons as sec
 from sitebuild.stats.pairwise import Sample
 from sitebuild.stats.summary import describe
-from tests.test_comparisons_section import make_table
 
 
 def _entry(arrays, names):
@@ -137,7 +137,7 @@ def test_the_page_says_where_a_smooth_on_tied_x_became_a_local_mean():
     import statsmodels.api as sm
 
     from sitebuild.sections import relationships as rel
-    from tests.test_relationships_section import _table
+    from test_relationships_section import _table
 
     data = sm.datasets.fair.load_pandas().data
     table = _table(

@@ -15,10 +15,12 @@ import tempfile
 from pathlib import Path
 
 import jsonschema
+import pytest
 from hypothesis import HealthCheck, example, given, settings
 from hypothesis import strategies as st
 
 import sitebuild
+from sitebuild.errors import SitebuildError
 from sitebuild.ingest import read_table
 from sitebuild.manifest import load_manifest
 from sitebuild.pipeline import Timer, analyse
@@ -145,9 +147,23 @@ def _number(text: str) -> bool:
         return False
 
 
+def unreadable_measure(rows) -> str | None:
+    """Return the first measure with values but not one number (the reader refuses it)."""
+    for index, name in ((1, "v"), (2, "w")):
+        cells = [r[index] for r in rows if r[index] not in MISSING]
+        if cells and not any(_number(c) for c in cells):
+            return name
+    return None
+
+
 @settings(max_examples=80, deadline=None, suppress_health_check=[HealthCheck.too_slow])
 @given(tables())
 def test_random_small_tables_analyse_to_valid_results(rows):
+    refused = unreadable_measure(rows)
+    if refused:  # a measure with values but no number is refused with a sentence naming it
+        with pytest.raises(SitebuildError, match=f"column '{refused}'"):
+            analysed(rows)
+        return
     check_dataset(analysed(rows), rows)
 
 
@@ -158,6 +174,11 @@ def test_random_small_tables_analyse_to_valid_results(rows):
 @example([("A", "0.0", "0.0"), ("A", "0.0", "7.267523926646682e-96")])
 @example([("A", "5e-324", "0"), ("A", "0.0", "1"), ("B", "5e-324", "2"), ("B", "1e-320", "3")])
 def test_random_tables_with_values_at_the_float_limits(rows):
+    refused = unreadable_measure(rows)
+    if refused:
+        with pytest.raises(SitebuildError, match=f"column '{refused}'"):
+            analysed(rows)
+        return
     check_dataset(analysed(rows), rows)
 
 
@@ -167,6 +188,12 @@ def test_random_small_tables_build_a_site_whose_results_validate(rows):
     with tempfile.TemporaryDirectory() as tmp:
         root = write_project(Path(tmp) / "p", MANIFEST, {"data/d.csv": csv_text(rows)})
         out = Path(tmp) / "site"
+        refused = unreadable_measure(rows)
+        if refused:
+            with pytest.raises(SitebuildError, match=f"column '{refused}'"):
+                sitebuild.build(root, out=out, quiet=True)
+            assert not out.exists()  # refused before anything was written
+            return
         sitebuild.build(root, out=out, quiet=True)
         text = (out / "results.json").read_text(encoding="utf-8")
         no_nan(text)
