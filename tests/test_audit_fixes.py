@@ -135,9 +135,9 @@ def test_the_page_says_where_a_smooth_on_tied_x_became_a_local_mean():
     import dataclasses
 
     import statsmodels.api as sm
+    from test_relationships_section import _table
 
     from sitebuild.sections import relationships as rel
-    from test_relationships_section import _table
 
     data = sm.datasets.fair.load_pandas().data
     table = _table(
