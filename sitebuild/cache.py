@@ -182,26 +182,36 @@ class Cache:
         folder (whose cache anyone who hands over the folder can edit, checksum and all): only
         from a folder of the user running the build that no one else can write to.
         """
-        folder = user_cache_folder()
-        path = folder / f"vega-bundle-{vl_convert_version()}.js"
-        check = path.with_suffix(".sha256")
-        trusted = _private(folder) and _private(path) and _private(check)
-        if self.enabled and trusted:
-            try:
-                data = path.read_bytes()
-                if hashlib.sha256(data).hexdigest() == check.read_text().strip():
-                    return data
-            except (OSError, ValueError):
-                pass
-        data = make()
+        path = user_cache_folder() / f"vega-bundle-{vl_convert_version()}.js"
+        if not self.enabled:
+            return make()
+        return kept_script(path, path.with_suffix(".sha256"), make)
+
+
+def kept_script(path: Path, check: Path, make) -> bytes:
+    """Return the script kept at ``path`` when it, its folder and its ``check`` (a SHA-256 of
+    its bytes) are private to this user and agree, else ``make()``, kept there for next time.
+
+    A copy that is a link, belongs to someone else, can be written by others or fails its
+    checksum is never returned: the script runs in every reader's browser.
+    """
+    folder = path.parent
+    if _private(folder) and _private(path) and _private(check):
         try:
-            folder.mkdir(mode=0o700, parents=True, exist_ok=True)
-            if _private(folder):
-                _atomic_write(path, data)
-                _atomic_write(check, hashlib.sha256(data).hexdigest().encode("ascii") + b"\n")
-        except OSError:
-            pass  # the script is made again next time; nothing depends on the kept copy
-        return data
+            data = path.read_bytes()
+            if hashlib.sha256(data).hexdigest() == check.read_text(encoding="ascii").strip():
+                return data
+        except (OSError, ValueError):
+            pass
+    data = make()
+    try:
+        folder.mkdir(mode=0o700, parents=True, exist_ok=True)
+        if _private(folder):
+            _atomic_write(path, data)
+            _atomic_write(check, hashlib.sha256(data).hexdigest().encode("ascii") + b"\n")
+    except OSError:
+        pass  # the script is made again next time; nothing depends on the kept copy
+    return data
 
 
 def _results_shape(payload) -> bool:
