@@ -528,10 +528,12 @@ def build(
     as one HTML file at those paths; ``progress`` is True (lines to stderr) or a function
     taking one line of text; ``quiet`` silences progress.
     """
+    from .allocator import reuse_freed_memory
     from .changes import core
     from .site import publish
 
     started = time.perf_counter()
+    reuse_freed_memory()  # large arrays come and go: keep their memory (see the module)
     say = _progress(progress, quiet, started)
     timer = Timer()
     manifest = load_manifest(project)
@@ -578,8 +580,11 @@ def build(
                     if say:
                         say(f"{spec.name}: unchanged, results reused")
                     break
+                from .charts.theme import import_in_background
                 from .engines import read_table
                 from .results import clean
+
+                import_in_background()  # the charts' library loads while the data are read
 
                 if say:
                     say(f"{spec.name}: reading {spec.file}")

@@ -182,12 +182,14 @@ def scatter_with_smooths(
     # drawn as lines only (their bands stay in results.json), the all-rows smooth
     # keeps its band.
     group_bands = len(curve_groups) <= MAX_GROUP_BANDS
+    # Group curves are drawn through every other grid point (and the last): about 50 points
+    # across the chart are still smooth lines, and the page ships half the rows.
     group_curves = [
         {"group": s["group"], **(p if group_bands else {"x": p["x"], "fit": p["fit"]})}
         for s in smooths
         if s["group"] is not None
-        for p in s["points"]
-        if p["fit"] is not None
+        for i, p in enumerate(s["points"])
+        if p["fit"] is not None and (i % 2 == 0 or i == len(s["points"]) - 1)
     ]
     overall = [
         p for s in smooths if s["group"] is None for p in s["points"] if p["fit"] is not None

@@ -201,6 +201,8 @@ def histograms(
             continue
         total = sum(g["counts"]) or 1
         for i, count in enumerate(g["counts"]):
+            if count == 0 and i > 0:
+                continue  # an empty bin draws nothing (its first bin keeps the group's panel)
             values.append(
                 {
                     "group": g["group"],

@@ -6,6 +6,8 @@ import copy
 import functools
 import math
 import os
+import sys
+import threading
 
 # Our group palette, in our own order: crimson, teal, ochre, violet, sky, brown, navy, orange.
 # Chosen so that every two of them, and each against the neutral reference grey, stay at least
@@ -210,6 +212,31 @@ def drawable(spec: dict) -> bool:
     return bool(spec) and spec.get("usermeta", {}).get("drawable", True)
 
 
+def _copy_spec(node):
+    """Copy a spec's dicts and lists, except the data records themselves.
+
+    A record list (``values``, a named dataset) is copied as a list but its records are
+    shared: nothing here changes a record in place (:func:`_round_records` makes new ones),
+    and copying thousands of records key by key costs more than the rest of a chart.
+    """
+    if isinstance(node, list):
+        return [_copy_spec(item) for item in node]
+    if not isinstance(node, dict):
+        return node
+    out = {}
+    for key, value in node.items():
+        if key == "values" and isinstance(value, list):
+            out[key] = list(value)
+        elif key == "datasets" and isinstance(value, dict):
+            out[key] = {
+                name: list(rows) if isinstance(rows, list) else _copy_spec(rows)
+                for name, rows in value.items()
+            }
+        else:
+            out[key] = _copy_spec(value)
+    return out
+
+
 def themed(spec: dict) -> dict:
     """Return ``spec`` with our config, inline data rounded to chart precision; input unchanged.
 
@@ -217,7 +244,7 @@ def themed(spec: dict) -> dict:
     extent); when nothing is left, ``usermeta.drawable`` is False and the page says so
     instead of drawing empty axes.
     """
-    out = copy.deepcopy(spec)
+    out = _copy_spec(spec)
     if not _prune(out):
         out["usermeta"] = {**out.get("usermeta", {}), "drawable": False}
     _compact_data(out)
@@ -357,6 +384,30 @@ def altair():
         return {"config": copy.deepcopy(CONFIG)}
 
     return alt
+
+
+def import_in_background() -> None:
+    """Start importing altair on a side thread, so the import overlaps reading the data.
+
+    Reading a file spends most of its time in pandas' and pyarrow's parsers, which release
+    the GIL; the import (about 0.4 s of Python) then costs no wall time. The first chart
+    waits for it on Python's import lock. Idempotent: a second call starts nothing.
+    """
+    global _import_started
+    if _import_started or "altair" in sys.modules:
+        return
+    _import_started = True
+
+    def load():
+        try:
+            altair()
+        except Exception:  # the first chart imports it again and reports any failure there
+            pass
+
+    threading.Thread(target=load, name="sitebuild-import-altair", daemon=True).start()
+
+
+_import_started = False
 
 
 def to_spec(chart, datasets: dict | None = None) -> dict:

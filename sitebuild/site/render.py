@@ -242,12 +242,16 @@ def environment():
 
     A project folder never supplies templates: a template is code (jinja2 can reach Python
     objects from one), and building someone else's project must never run their code. The one
-    thing a project may restyle is ``layouts/style.css`` (see :func:`asset_bytes`).
+    thing a project may restyle is ``layouts/style.css`` (see :func:`asset_bytes`). The
+    compiled layouts are kept in the user's own cache folder (see :mod:`.template_cache`).
     """
     import jinja2
 
+    from .template_cache import PrivateCodeCache
+
     env = jinja2.Environment(
         loader=jinja2.FileSystemLoader([str(packaged_layouts())]),
+        bytecode_cache=PrivateCodeCache(),
         autoescape=True,
         undefined=jinja2.StrictUndefined,
         keep_trailing_newline=True,

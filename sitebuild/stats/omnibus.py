@@ -295,8 +295,9 @@ def kruskal_wallis(
     ns = np.array([len(g) for g in groups], dtype=float)
     if (ns < 1).any():
         raise ValueError("every group needs at least one value")
-    pooled = np.concatenate([np.asarray(g, dtype=float) for g in groups])
-    n = pooled.size
+    given = ranks is not None and runs is not None  # then the values themselves are not needed
+    pooled = None if given else np.concatenate([np.asarray(g, dtype=float) for g in groups])
+    n = int(ns.sum())
     if ranks is None:
         all_ranks = stats.rankdata(pooled)
         bounds = np.cumsum(np.concatenate([[0], ns])).astype(int)

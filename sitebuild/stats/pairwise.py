@@ -135,6 +135,50 @@ def dominance_counts(xs: Sample, ys: Sample) -> tuple[np.ndarray, np.ndarray]:
     return below, at_or_below
 
 
+def _pooled_ranks(samples: Sequence[Sample]) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Return (mid-ranks, value codes, run sizes) of the groups' values pooled.
+
+    The pooled values are the groups' sorted values one after another, so the stable sort
+    only merges sorted runs. ``ranks`` and ``codes`` follow that pooled order (group 0's
+    sorted values first); ``codes`` index the distinct values, ``runs`` count each one. Mid-ranks
+    are (first + last + 1)/2 of each run of equal values (1-based), as
+    scipy.stats.rankdata(method="average") gives.
+    """
+    pooled = np.concatenate([s.sorted for s in samples])
+    size = pooled.size
+    order = np.argsort(pooled, kind="stable")
+    ordered = pooled[order]
+    del pooled  # (temporaries are let go early: at 10M rows each is 80 MB)
+    new_value = np.empty(size, dtype=bool)
+    new_value[:1] = True
+    np.not_equal(ordered[1:], ordered[:-1], out=new_value[1:])
+    del ordered
+    starts = np.flatnonzero(new_value)
+    runs = np.diff(np.append(starts, size))
+    code_sorted = np.cumsum(new_value, dtype=np.int64) - 1
+    del new_value
+    codes = np.empty(size, dtype=np.int64)
+    codes[order] = code_sorted
+    ranks = np.empty(size, dtype=np.float64)
+    ranks[order] = ((2 * starts + runs + 1) / 2.0)[code_sorted]
+    return ranks, codes, runs
+
+
+def pooled_ranks(samples: Sequence[Sample]) -> tuple[list[np.ndarray], np.ndarray]:
+    """Return each group's mid-ranks (of its sorted values) in the pooled sample, and the
+    sizes of the pooled sample's runs of equal values: what Kruskal–Wallis needs.
+
+    Examples
+    --------
+    >>> ranks, runs = pooled_ranks([Sample.of(np.array([1., 2, 2])), Sample.of(np.array([2., 5]))])
+    >>> [r.tolist() for r in ranks], runs.tolist()
+    ([[1.0, 3.0, 3.0], [3.0, 5.0]], [1, 3, 1])
+    """
+    ranks, _, runs = _pooled_ranks(samples)
+    bounds = np.cumsum([0] + [s.n for s in samples])
+    return [ranks[bounds[g] : bounds[g + 1]] for g in range(len(samples))], runs
+
+
 @dataclass(frozen=True, eq=False)
 class SharedRanks:
     """Mid-ranks, value codes and cumulative counts of several groups, from one pooled sort.
@@ -156,9 +200,8 @@ class SharedRanks:
 
         Notes
         -----
-        The pooled values are the groups' sorted values one after another, so the stable
-        sort only merges sorted runs. Mid-ranks are (first + last + 1)/2 of each run of equal
-        values (1-based), as scipy.stats.rankdata(method="average") gives.
+        Ranks, codes and runs as in :func:`_pooled_ranks` (a stable sort that merges the
+        groups' sorted runs).
 
         Examples
         --------
@@ -166,26 +209,10 @@ class SharedRanks:
         >>> shared.ranks[1].tolist(), shared.dominance(0, 1)[0].tolist()
         ([3.0, 5.0], [0, 0, 0])
         """
-        pooled = np.concatenate([s.sorted for s in samples])
-        size = pooled.size
+        size = sum(s.n for s in samples)
         bounds = np.cumsum([0] + [s.n for s in samples])
-        order = np.argsort(pooled, kind="stable")
-        ordered = pooled[order]
-        del pooled  # (temporaries are let go early: at 10M rows each is 80 MB)
-        new_value = np.empty(size, dtype=bool)
-        new_value[:1] = True
-        np.not_equal(ordered[1:], ordered[:-1], out=new_value[1:])
-        del ordered
-        starts = np.flatnonzero(new_value)
-        runs = np.diff(np.append(starts, size))
-        code_sorted = np.cumsum(new_value, dtype=np.int64) - 1
-        del new_value
-        codes = np.empty(size, dtype=np.int64)
-        codes[order] = code_sorted
-        ranks = np.empty(size, dtype=np.float64)
-        ranks[order] = ((2 * starts + runs + 1) / 2.0)[code_sorted]
-        del order, code_sorted
-        distinct = starts.size
+        ranks, codes, runs = _pooled_ranks(samples)
+        distinct = runs.size
         tied_codes = np.flatnonzero(runs > 1)
         count_type = np.int32 if size < 2**31 else np.int64
         group_codes, cumulative, tied = [], [], []
@@ -1023,6 +1050,7 @@ __all__ = [
     "PermutationResult",
     "Sample",
     "SharedRanks",
+    "pooled_ranks",
     "ShiftEstimate",
     "WelchTResult",
     "cliffs_delta",
