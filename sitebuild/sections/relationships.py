@@ -17,7 +17,7 @@ from ..stats.loess import loess
 from ..stats.multiplicity import METHOD_NAMES, adjust_pvalues
 from . import PARALLEL_ROWS, Chart, DataTable, sampled_caption
 
-SCATTER_LIMIT = 1_000  # points shipped per scatter chart (keeps a 1M-row site under 3 MB)
+SCATTER_LIMIT = 800  # points shipped per scatter chart (keeps a 1M-row site under 3 MB)
 SCATTER_BUDGET = 16_000  # points shipped over all scatter charts of a page (wide tables)
 WIDE_PAIRS = 45  # more column pairs than this (over 10 columns) makes a table "wide"
 PAIR_SMOOTH_LIMIT = 50_000  # rows used for the measure-against-measure curvature check
