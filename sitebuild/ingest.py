@@ -109,22 +109,22 @@ class Table:
         return self.columns[name]
 
     def by_group(self, name: str) -> list[np.ndarray]:
-        """Return the non-missing values of ``name`` per group, in display order."""
-        key = ("by_group", name)
-        if key not in self._cache:
-            values = self.columns[name]
-            keep = ~np.isnan(values)
-            codes = self.codes[keep]
-            kept = values[keep]
-            # Small codes as int16 sort by radix (linear); a stable sort gives the same order.
-            narrow = codes.astype(np.int16) if len(self.groups) < 32_000 else codes
-            order = np.argsort(narrow, kind="stable")
-            bounds = np.searchsorted(codes[order], np.arange(len(self.groups) + 1))
-            sorted_values = kept[order]
-            self._cache[key] = [
-                sorted_values[bounds[i] : bounds[i + 1]] for i in range(len(self.groups))
-            ]
-        return self._cache[key]
+        """Return the non-missing values of ``name`` per group, in display order.
+
+        Made afresh on each call (each caller asks once per column): kept, they would hold a
+        copy of every column for the whole build (10M rows: 400 MB).
+        """
+        values = self.columns[name]
+        keep = ~np.isnan(values)
+        codes = self.codes[keep]
+        kept = values[keep]
+        del keep
+        # Small codes as int16 sort by radix (linear); a stable sort gives the same order.
+        narrow = codes.astype(np.int16) if len(self.groups) < 32_000 else codes
+        order = np.argsort(narrow, kind="stable")
+        bounds = np.searchsorted(codes[order], np.arange(len(self.groups) + 1))
+        sorted_values = kept[order]
+        return [sorted_values[bounds[i] : bounds[i + 1]] for i in range(len(self.groups))]
 
 
 def natural_key(label: str):

@@ -132,6 +132,14 @@ class Timer:
             self.stages[name] = self.stages.get(name, 0.0) + time.perf_counter() - start
 
 
+def _release_reader_memory() -> None:
+    """Hand back the memory pyarrow's own allocator kept from reading (its buffers for the
+    columns stay): reading 10M rows of Parquet left about 0.3 GB of it unused."""
+    arrow = sys.modules.get("pyarrow")
+    if arrow is not None:
+        arrow.default_memory_pool().release_unused()
+
+
 @contextmanager
 def one_blas_thread():
     """Run the block with the BLAS library (behind numpy's dot and matrix products) on one thread.
@@ -593,6 +601,7 @@ def build(
                         table = read_table(
                             spec, rng=dataset_rng(manifest.site.seed, spec.name, 99), sha256=sha
                         )
+                    _release_reader_memory()
                     if say:
                         say(f"{spec.name}: {table.report.rows_used:,} rows ready")
                     ds = clean(analyse(table, manifest, timer, say))

@@ -83,7 +83,7 @@ def chosen_groups(table) -> list[int]:
 
 
 def _correlations(table, names, settings, rng, chosen: list[int]) -> tuple[list[dict], dict]:
-    data = np.column_stack([table.values(name) for name in names])
+    data = [table.values(name) for name in names]  # columns, not a copy (10M rows: 400 MB)
     # Groups beyond the limit share one extra code whose tables are dropped; all-rows scope
     # still uses every row.
     remap = np.full(len(table.groups), len(chosen), dtype=np.int64)
@@ -438,9 +438,12 @@ def compute(table, settings, rng: np.random.Generator, partial: dict | None = No
                 part = slice(bounds[g], bounds[g + 1])
                 scopes.append((table.groups[g], xs[part], ys[part]))
             fitted = []
+            del xs, ys  # the scopes hold what they need (views)
             for label, xv, yv in scopes:
                 keep = ~(np.isnan(xv) | np.isnan(yv))
-                xv, yv = xv[keep], yv[keep]
+                if not keep.all():
+                    xv, yv = xv[keep], yv[keep]
+                del keep
                 fit = loess(xv, yv, span, spec.smooth_degree, spec.smooth_robust, level)
                 fitted.append((label, fit, straight_line(xv, yv, level)))
             out.append(fitted)

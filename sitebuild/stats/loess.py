@@ -312,7 +312,9 @@ def _check(x, y, degree: int) -> tuple[np.ndarray, np.ndarray, str | None]:
     if x.shape != y.shape or x.ndim != 1:
         raise ValueError("x and y must be one-dimensional and of the same length")
     keep = np.isfinite(x) & np.isfinite(y)
-    x, y = x[keep], y[keep]
+    if not keep.all():
+        x, y = x[keep], y[keep]
+    del keep
     if degree not in (1, 2):
         raise ValueError("degree must be 1 or 2")
     if x.size < degree + 3:
