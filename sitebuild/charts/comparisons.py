@@ -17,7 +17,6 @@ from .theme import (
     altair,
     dashed_when_few,
     edge_arrows,
-    focus_param,
     themed,
     to_spec,
 )
@@ -296,14 +295,13 @@ def forest_chart(entry: dict, mi: int) -> Chart | None:
     )
     layers.extend(edge_arrows(arrows, {"y": y}))
     groups = sorted({r["a"] for r in rows} | {r["b"] for r in rows})
-    chart = (
-        alt.layer(*layers, data=alt.NamedData(name="pairs"))
-        .properties(
-            height=max(60, 22 * len(rows)),
-            width="container",
-            usermeta={"measure": measure, "kind": "forest", "groups": groups},
-        )
-        .add_params(focus_param())
+    # Sizes and usermeta go to the constructor: .properties() would copy the chart again.
+    chart = alt.layer(
+        *layers,
+        data=alt.NamedData(name="pairs"),
+        height=max(60, 22 * len(rows)),
+        width="container",
+        usermeta={"measure": measure, "kind": "forest", "groups": groups},
     )
     shown = "" if len(ranked) == len(pairs) else f" (the {len(ranked)} largest of {len(pairs)})"
     family = entry.get("family") or {}
@@ -330,7 +328,7 @@ def forest_chart(entry: dict, mi: int) -> Chart | None:
             f"Estimated {est_name} for each compared pair{shown}, sorted by size, with "
             f"{what}; the dashed line marks no difference{band}."
         ),
-        spec=to_spec(chart, {"pairs": rows}),
+        spec=to_spec(chart, {"pairs": rows}, focus=True),
         table=f"cmp-{mi}-pairs",
     )
 

@@ -13,7 +13,6 @@ from .theme import (
     MUTED,
     altair,
     dimmed_unless_picked,
-    focus_param,
     group_encoding,
     themed,
     to_spec,
@@ -272,16 +271,14 @@ def scatter_with_smooths(
             .mark_line(color=MUTED, strokeDash=[6, 4], strokeWidth=1.6)
             .encode(x=x, y=fit)
         )
-    chart = (
-        alt.layer(*layers)
-        .properties(
-            width="container",
-            height=300,
-            usermeta={"measure": y_title, "kind": "scatter", "groups": list(groups)},
-        )
-        .add_params(focus_param())
+    # Sizes and usermeta go to the constructor: .properties() would copy the chart again.
+    chart = alt.layer(
+        *layers,
+        width="container",
+        height=300,
+        usermeta={"measure": y_title, "kind": "scatter", "groups": list(groups)},
     )
-    return to_spec(chart, datasets)
+    return to_spec(chart, datasets, focus=True)
 
 
 def with_date_axis(spec: dict, origin_ms: int) -> dict:

@@ -12,7 +12,6 @@ from .theme import (
     dimmed_unless_picked,
     edge_arrows,
     focus_opacity,
-    focus_param,
     group_colour_scale,
     group_encoding,
     themed,
@@ -166,18 +165,19 @@ def mean_intervals(
         },
         MUTED,
     )
-    chart = (
-        alt.layer(interval, mean, *arrows, data=alt.NamedData(name="means"))
-        .properties(
-            # A fixed height of one row per group (a "step" height would make Vega-Lite drop
-            # the fit to the container's width with a warning).
-            height=ROW_HEIGHT * max(1, len(shown)),
-            width="container",
-            usermeta={"measure": measure, "kind": "means", "groups": list(all_groups)},
-        )
-        .add_params(focus_param())
+    # Sizes and usermeta go to the constructor: .properties() would copy the chart again.
+    chart = alt.layer(
+        interval,
+        mean,
+        *arrows,
+        data=alt.NamedData(name="means"),
+        # A fixed height of one row per group (a "step" height would make Vega-Lite drop
+        # the fit to the container's width with a warning).
+        height=ROW_HEIGHT * max(1, len(shown)),
+        width="container",
+        usermeta={"measure": measure, "kind": "means", "groups": list(all_groups)},
     )
-    return to_spec(chart, {"means": values})
+    return to_spec(chart, {"means": values}, focus=True)
 
 
 HIST_WIDTH = 800  # px per histogram panel; the page's script narrows it to the box

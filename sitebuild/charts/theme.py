@@ -410,20 +410,20 @@ def import_in_background() -> None:
 _import_started = False
 
 
-def to_spec(chart, datasets: dict | None = None) -> dict:
+def to_spec(chart, datasets: dict | None = None, focus: bool = False) -> dict:
     """Return an altair chart as a themed Vega-Lite dict (see :func:`themed`), with
-    ``datasets`` (name -> records) as its named data.
+    ``datasets`` (name -> records) as its named data and, with ``focus``, the page-wide
+    ``focus`` parameter (the highlighted group's label, or null) at its top level.
 
     The records are added after altair has made the dict: altair copies and walks every value
-    it is given, which for a few thousand points costs more than the rest of the chart.
+    it is given, which for a few thousand points costs more than the rest of the chart. So is
+    the parameter: altair's ``add_params`` on a layered chart copies every layer, and gives
+    the same top-level entry (about a quarter of a page's chart-building time).
     """
     check = os.environ.get(CHECK_CHARTS_ENV) == "1"
     spec = chart.to_dict(validate=check)
+    if focus:
+        spec["params"] = [*spec.get("params", []), {"name": FOCUS, "value": None}]
     if datasets:
         spec["datasets"] = {**spec.get("datasets", {}), **datasets}
     return themed(spec)
-
-
-def focus_param():
-    """Return the page-wide ``focus`` variable parameter as an altair parameter."""
-    return altair().param(name=FOCUS, value=None)
