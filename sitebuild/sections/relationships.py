@@ -429,16 +429,17 @@ def compute(table, settings, rng: np.random.Generator, partial: dict | None = No
         if not x_name:
             return []
         x_all = table.values(x_name)
+        xs = x_all[order]  # rows in group order, once for every measure
         out = []
         for measure in measures:
             y_all = table.values(measure)
             scopes = [(None, x_all, y_all)]
-            xs, ys = x_all[order], y_all[order]
+            ys = y_all[order]
             for g in drawn:
                 part = slice(bounds[g], bounds[g + 1])
                 scopes.append((table.groups[g], xs[part], ys[part]))
             fitted = []
-            del xs, ys  # the scopes hold what they need (views)
+            del ys  # the scopes hold what they need (views)
             for label, xv, yv in scopes:
                 keep = ~(np.isnan(xv) | np.isnan(yv))
                 if not keep.all():
