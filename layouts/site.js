@@ -8,6 +8,7 @@
   var picked = null;  // the highlighted group's label, or null
   var MIN_WIDTH = 260;  // px: the narrowest a chart box is drawn (a phone is 390 px wide)
   var FACET_LABELS = 70;  // px a faceted chart needs beside its panels (y axis and title)
+  var NARROW = 480;  // px: below this a chart box gets a two-column legend
 
   function specs() {
     var node = document.getElementById("chart-specs");
@@ -91,6 +92,12 @@
         // A faceted chart cannot take the box's width by itself: it is given it here.
         var room = (box.clientWidth || 560) - FACET_LABELS;
         spec = Object.assign({}, spec, { width: Math.max(MIN_WIDTH - FACET_LABELS, Math.min(spec.width || 560, room)) });
+      }
+      var legend = (spec.config || {}).legend;
+      if (legend && legend.columns > 2 && (box.clientWidth || 560) < NARROW) {
+        // On a phone four legend columns run past the box's edge: two fit.
+        spec = Object.assign({}, spec, { config: Object.assign({}, spec.config, {
+          legend: Object.assign({}, legend, { columns: 2, labelLimit: 120 }) }) });
       }
       pending.push(window.vegaEmbed(box, spec, { actions: false, mode: "vega-lite", renderer: "svg", tooltip: true })
         .then(function (result) {
