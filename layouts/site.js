@@ -94,10 +94,16 @@
         spec = Object.assign({}, spec, { width: Math.max(MIN_WIDTH - FACET_LABELS, Math.min(spec.width || 560, room)) });
       }
       var legend = (spec.config || {}).legend;
-      if (legend && legend.columns > 2 && (box.clientWidth || 560) < NARROW) {
-        // On a phone four legend columns run past the box's edge: two fit.
+      // A folded chart's box has no width yet: the screen's width decides for it.
+      var across = Math.min(box.clientWidth || Infinity, document.documentElement.clientWidth);
+      if (legend && across < NARROW) {
+        // On a phone a legend of several columns, placed over the plot (which starts after
+        // the axis labels), runs past the box's edge: one column, and shorter axis labels
+        // and axis titles (the full text stays in the tooltips and the tables).
+        var axis = (spec.config || {}).axis || {};
         spec = Object.assign({}, spec, { config: Object.assign({}, spec.config, {
-          legend: Object.assign({}, legend, { columns: 2, labelLimit: 120 }) }) });
+          legend: Object.assign({}, legend, { columns: 1, labelLimit: 150 }),
+          axis: Object.assign({}, axis, { labelLimit: 120, titleLimit: Math.max(120, across - 40) }) }) });
       }
       pending.push(window.vegaEmbed(box, spec, { actions: false, mode: "vega-lite", renderer: "svg", tooltip: true })
         .then(function (result) {

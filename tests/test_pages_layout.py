@@ -93,6 +93,35 @@ def test_no_sideways_overflow_on_a_390_pixel_screen(browser, example_site):
     context.close()
 
 
+LEGEND_OVERFLOW = """() => {
+    document.querySelectorAll('details').forEach(d => { d.open = true; });
+    const out = [];
+    document.querySelectorAll('[data-chart]').forEach(box => {
+        const edge = box.getBoundingClientRect().right;
+        const left = box.getBoundingClientRect().left;
+        box.querySelectorAll('.role-legend, .role-axis-title').forEach(part => {
+            const r = part.getBoundingClientRect();
+            if (r.width && (r.right > edge + 1 || r.left < left - 1)) {
+                out.push(box.dataset.chart + ': ' + part.getAttribute('class'));
+            }
+        });
+    });
+    return out;
+}"""
+
+
+def test_chart_legends_and_axis_titles_stay_inside_their_box_on_a_390_pixel_screen(
+    browser, example_site
+):
+    # Folded charts are drawn while folded; opened on a phone, their legends must still fit.
+    context = browser.new_context(viewport={"width": 390, "height": 844})
+    for name in DATASET_PAGES:
+        page = open_page(context, example_site, name)
+        assert page.evaluate(LEGEND_OVERFLOW) == [], f"{name}: a legend or axis title runs past its chart"
+        page.close()
+    context.close()
+
+
 def test_printed_page_holds_text_from_inside_a_folded_part(desktop, example_site):
     import pypdf  # in the test extra: a missing one fails, never skips
 
