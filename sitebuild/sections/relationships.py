@@ -430,22 +430,26 @@ def compute(table, settings, rng: np.random.Generator, partial: dict | None = No
             return []
         x_all = table.values(x_name)
         xs = x_all[order]  # rows in group order, once for every measure
+        # Each scope's x is one array for every measure, so the smooths share its bins.
+        x_scopes = [x_all] + [xs[bounds[g] : bounds[g + 1]] for g in drawn]
+        labels = [None] + [table.groups[g] for g in drawn]
+        shared: dict = {}
         out = []
         for measure in measures:
             y_all = table.values(measure)
-            scopes = [(None, x_all, y_all)]
             ys = y_all[order]
-            for g in drawn:
-                part = slice(bounds[g], bounds[g + 1])
-                scopes.append((table.groups[g], xs[part], ys[part]))
+            y_scopes = [y_all] + [ys[bounds[g] : bounds[g + 1]] for g in drawn]
+            scopes = list(zip(labels, x_scopes, y_scopes, strict=True))
             fitted = []
-            del ys  # the scopes hold what they need (views)
+            del ys, y_scopes  # the scopes hold what they need (views)
             for label, xv, yv in scopes:
                 keep = ~(np.isnan(xv) | np.isnan(yv))
                 if not keep.all():
                     xv, yv = xv[keep], yv[keep]
                 del keep
-                fit = loess(xv, yv, span, spec.smooth_degree, spec.smooth_robust, level)
+                fit = loess(
+                    xv, yv, span, spec.smooth_degree, spec.smooth_robust, level, shared=shared
+                )
                 fitted.append((label, fit, straight_line(xv, yv, level)))
             out.append(fitted)
         return out

@@ -142,6 +142,17 @@ def _moments(bins: _Bins, y: np.ndarray, w: np.ndarray | None, degree: int) -> _
     return _Moments(mx, my, mx2)
 
 
+def _y_moments(bins: _Bins, y: np.ndarray, degree: int) -> np.ndarray:
+    """The unweighted y moments of :func:`_moments` on the binned path (same sums, same order)."""
+    size = bins.centre.size
+    my = np.empty((size, degree + 1))
+    power = np.ones_like(bins.offset)
+    for k in range(degree + 1):
+        my[:, k] = np.bincount(bins.index, weights=power * y, minlength=size)
+        power = power * bins.offset
+    return my
+
+
 def _radius(bins: _Bins, at: np.ndarray, q: int) -> np.ndarray:
     """Distance from each point in ``at`` to its q-th nearest observation."""
     c = bins.centre
@@ -337,7 +348,7 @@ def _check(x, y, degree: int) -> tuple[np.ndarray, np.ndarray, str | None]:
 class _Smoother:
     """One data set prepared for fitting at several spans (bins and moments are reused)."""
 
-    def __init__(self, x, y, degree, exact_limit, bins):
+    def __init__(self, x, y, degree, exact_limit, bins, shared: dict | None = None):
         self.degree = degree
         self.n = x.size
         self.exact = self.n <= exact_limit
@@ -346,17 +357,29 @@ class _Smoother:
             order = np.argsort(x, kind="stable")
             x, y = x[order], y[order]
         self.x, self.y = x, y
-        self.bins = _make_bins(x, self.exact, bins)
-        self.grid = np.linspace(x.min(), x.max(), GRID_SIZE)
-        if self.exact:
-            self.vertices = None
+        # What depends on x alone (bins, grid, vertices, the x moments) is the same for every
+        # measure fitted on this very array: taken from ``shared`` when it was made for it.
+        key = (id(x), degree, bins)
+        kept = None if shared is None or self.exact else shared.get(key)
+        if kept is not None and kept[0] is x:
+            _, self.bins, self.grid, self.vertices, mx = kept
+            self.start = _Moments(mx, _y_moments(self.bins, y, degree), mx)
         else:
-            cum = np.cumsum(self.bins.count)
-            targets = (np.arange(VERTICES) + 0.5) * (self.n / VERTICES)
-            quantile_points = self.bins.centre[np.searchsorted(cum, targets)]
-            self.vertices = np.unique(np.concatenate([self.grid, quantile_points]))
+            self.bins = _make_bins(x, self.exact, bins)
+            self.grid = np.linspace(x.min(), x.max(), GRID_SIZE)
+            if self.exact:
+                self.vertices = None
+            else:
+                cum = np.cumsum(self.bins.count)
+                targets = (np.arange(VERTICES) + 0.5) * (self.n / VERTICES)
+                quantile_points = self.bins.centre[np.searchsorted(cum, targets)]
+                self.vertices = np.unique(np.concatenate([self.grid, quantile_points]))
+            self.start = _moments(self.bins, y, None, degree)  # unweighted
+            if shared is not None and not self.exact:
+                # x itself is kept with them, so its id cannot pass to another array.
+                shared[key] = (x, self.bins, self.grid, self.vertices, self.start.mx)
+        if not self.exact:
             self.yy = float(y @ y)
-        self.start = _moments(self.bins, y, None, degree)  # unweighted
         # The RSS uses unweighted moments up to degree 1 (value and slope in each bin).
         self.plain = _Moments(self.start.mx[:, :3], self.start.my[:, :2], self.start.mx2[:, :3])
         centred = y - y.mean()
@@ -481,6 +504,7 @@ def loess(
     level: float = 0.95,
     exact_limit: int = EXACT_LIMIT,
     bins: int = BINS,
+    shared: dict | None = None,
 ) -> LoessFit:
     """Return a LOESS fit on a 100-point grid over the range of x, with a pointwise band.
 
@@ -502,7 +526,9 @@ def loess(
     pointwise, not simultaneous. enp = tr(L) is the equivalent number of parameters.
 
     ``span="auto"`` picks the span by AICc (see :func:`choose_span`). Above ``exact_limit``
-    points the fit is binned (see the module notes).
+    points the fit is binned (see the module notes). ``shared`` (a dict the caller keeps
+    across calls) lets fits of several measures on the same x array share what depends on x
+    alone; the results are the same with or without it.
 
     References
     ----------
@@ -520,7 +546,7 @@ def loess(
     x, y, reason = _check(x, y, degree)
     if reason:
         return _undefined(int(x.size), span, degree, robust_iterations, level, reason)
-    smoother = _Smoother(x, y, degree, exact_limit, bins)
+    smoother = _Smoother(x, y, degree, exact_limit, bins, shared)
     n = smoother.n
     if span == "auto":
         span = _choose(smoother, SPAN_CANDIDATES).span
