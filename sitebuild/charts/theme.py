@@ -383,6 +383,12 @@ def altair():
     def _look():
         return {"config": copy.deepcopy(CONFIG)}
 
+    if os.environ.get(CHECK_CHARTS_ENV) != "1":
+        # altair checks every part against the schema as it is made (its "debug mode"):
+        # about an eighth of a page's chart time. The tests check whole specs instead (above).
+        from altair.utils.schemapi import disable_debug_mode
+
+        disable_debug_mode()
     return alt
 
 
