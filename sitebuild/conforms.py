@@ -46,9 +46,33 @@ def conforms(value, definition: str | None = None) -> bool:
         return False
 
 
+_NOTES = frozenset({"description", "title", "$comment", "examples", "default"})
+_SIMPLE: dict[int, tuple] = {}  # id of a schema node -> its type checks, () if not simple
+
+
+def _simple(node: dict) -> tuple:
+    """The type checks of a node that says nothing but its type (most leaves), else ().
+
+    Keyed by the node's id: the nodes live in the cached schema for the whole process.
+    """
+    found = _SIMPLE.get(id(node))
+    if found is None:
+        found = ()
+        if set(node) - _NOTES == {"type"}:
+            kinds = node["type"]
+            found = tuple(_TYPES[k] for k in ([kinds] if isinstance(kinds, str) else kinds))
+        _SIMPLE[id(node)] = found
+    return found
+
+
 def _fits(value, node: dict, root: dict, depth: int) -> bool:
     if depth > 64:  # results are a few levels deep; deeper is damage
         return False
+    simple = _simple(node)
+    if simple:  # a leaf: its type, and a finite number (the checks below, taken short)
+        if not any(check(value) for check in simple):
+            return False
+        return not (isinstance(value, float) and not math.isfinite(value))
     if "$ref" in node:
         target = root
         for part in node["$ref"].removeprefix("#/").split("/"):
