@@ -52,7 +52,7 @@ class BottomLineRow:
     measure: str
     anchor: str  # id of the measure's section on the page
     compared: bool
-    differ: bool  # the main test found a difference at alpha
+    differ: bool  # the main test (or the comparison at equal x, when it leads) found one
     verdict: str  # "The groups differ", "No clear difference shown", "Not compared"
     centre: str  # "mean" or "median"
     top_word: str  # "Highest" or "Best"
@@ -71,6 +71,9 @@ class BottomLineRow:
     reason: str | None  # why a measure was not compared
     points: tuple[GroupPoint, ...]
     headline: str  # one sentence for the overview page
+    # " at equal x" when the comparison at equal values of the explanatory column leads and
+    # gives the verdict and how sure (the gap shown stays the raw one); "" otherwise
+    at_equal_x: str = ""
 
 
 @dataclass(frozen=True)
@@ -247,16 +250,42 @@ def bottom_line_row(ds: dict, entry: dict, index: int) -> BottomLineRow:
     adjusted = entry.get("adjusted")
     if isinstance(adjusted, dict) and isinstance(adjusted.get("sentence"), str):
         x_note = adjusted["sentence"]  # the adjusted comparison says it better when present
-    for equal_x in ds.get("adjusted") or []:  # the gap at equal x, when groups differ in x
-        if equal_x.get("measure") == measure and equal_x.get("differs_in_x"):
-            x_note = equal_x.get("headline") or x_note
-    verdict = "The groups differ" if differ else "No clear difference shown"
+    at_equal_x = ""
+    equal_x = next((a for a in ds.get("adjusted") or [] if a.get("measure") == measure), None)
+    if equal_x and (equal_x.get("differs_in_x") or equal_x.get("leads")):
+        x_note = equal_x.get("headline") or x_note  # the gap at equal x
+    if equal_x and equal_x.get("leads") and equal_x.get("group_p") is not None and high and low:
+        # The comparison at equal x leads (the groups differ in x, or x accounts for much of
+        # the variation within groups): whether the groups differ, and how sure, come from
+        # it, not from the raw gap, part of which x may explain.
+        x = equal_x.get("x")
+        at_equal_x = f" at equal {x}"
+        differ = equal_x["group_p"] < alpha
+        named = {high["group"], low["group"]}
+        pair_x = next(
+            (q for q in equal_x.get("pairs") or [] if {q.get("a"), q.get("b")} == named), None
+        )
+        p_x = pair_x.get("p_adjusted") if pair_x else equal_x["group_p"]
+        sure, level = _sure(p_x, alpha, False)
+        if pair_x:
+            sure_note = (
+                f"{high['group']} against {low['group']}{at_equal_x}: adjusted {p_phrase(p_x)}"
+            )
+        else:
+            sure_note = f"the groups{at_equal_x}: {p_phrase(p_x)}"
+        sure_short = f"{at_equal_x.strip()}: adjusted {p_phrase(p_x)}" if p_x is not None else ""
+    verdict = ("The groups differ" if differ else "No clear difference shown") + at_equal_x
     top_text = f"{best['group']} {_with_unit(format_value(best[centre], decimals), unit)}"
     bottom_text = f"{worst['group']} {_with_unit(format_value(worst[centre], decimals), unit)}"
     if differ:
         headline = (
             f"{measure}: {top_word.lower()} {how} is {best['group']}, "
             f"{bottom_word.lower()} {worst['group']}; gap {gap_text}. {sure}."
+        )
+    elif at_equal_x:
+        headline = (
+            f"{measure}: no clear difference between the groups{at_equal_x} "
+            f"(the raw gap, {gap_text} {how}, may come from {equal_x.get('x')})."
         )
     else:
         headline = (
@@ -268,7 +297,7 @@ def bottom_line_row(ds: dict, entry: dict, index: int) -> BottomLineRow:
         centre=centre, top_word=top_word, bottom_word=bottom_word, top=best["group"],
         top_text=top_text, bottom=worst["group"], bottom_text=bottom_text, gap_text=gap_text,
         gap_parts=gap_parts, sure=sure, sure_level=level, sure_note=sure_note, sure_short=sure_short, x_note=x_note, reason=None,
-        points=points, headline=headline,
+        points=points, headline=headline, at_equal_x=at_equal_x,
     )  # fmt: skip
 
 
