@@ -139,6 +139,9 @@ def test_when_the_comparison_at_equal_x_leads_it_gives_the_verdict(results):
     assert not walk.differ and walk.verdict == "No clear difference shown at equal lines"
     assert walk.sure_level == "none" and "at equal lines" in walk.sure_note
     assert "2.1 m" in walk.x_note and "36.5 m raw" in walk.x_note
+    assert walk.gap_at_equal_x.startswith("2.1 m (") and walk.gap_at_equal_x.endswith(
+        " at equal lines"
+    )
     assert "could be chance" not in walk.headline and "may come from lines" in walk.headline
     pick = rows["pick time [s]"]
     assert pick.differ and pick.verdict == "The groups differ at equal lines"

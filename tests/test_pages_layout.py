@@ -117,7 +117,9 @@ def test_chart_legends_and_axis_titles_stay_inside_their_box_on_a_390_pixel_scre
     context = browser.new_context(viewport={"width": 390, "height": 844})
     for name in DATASET_PAGES:
         page = open_page(context, example_site, name)
-        assert page.evaluate(LEGEND_OVERFLOW) == [], f"{name}: a legend or axis title runs past its chart"
+        assert page.evaluate(LEGEND_OVERFLOW) == [], (
+            f"{name}: a legend or axis title runs past its chart"
+        )
         page.close()
     context.close()
 

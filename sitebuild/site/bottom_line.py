@@ -74,6 +74,9 @@ class BottomLineRow:
     # " at equal x" when the comparison at equal values of the explanatory column leads and
     # gives the verdict and how sure (the gap shown stays the raw one); "" otherwise
     at_equal_x: str = ""
+    # The top-against-bottom gap at equal x with its interval ("8.9 s (3.5 to 14.3) at equal
+    # lines"), when that comparison leads; None otherwise
+    gap_at_equal_x: str | None = None
 
 
 @dataclass(frozen=True)
@@ -251,6 +254,7 @@ def bottom_line_row(ds: dict, entry: dict, index: int) -> BottomLineRow:
     if isinstance(adjusted, dict) and isinstance(adjusted.get("sentence"), str):
         x_note = adjusted["sentence"]  # the adjusted comparison says it better when present
     at_equal_x = ""
+    gap_at_equal_x = None
     equal_x = next((a for a in ds.get("adjusted") or [] if a.get("measure") == measure), None)
     if equal_x and (equal_x.get("differs_in_x") or equal_x.get("leads")):
         x_note = equal_x.get("headline") or x_note  # the gap at equal x
@@ -274,6 +278,19 @@ def bottom_line_row(ds: dict, entry: dict, index: int) -> BottomLineRow:
         else:
             sure_note = f"the groups{at_equal_x}: {p_phrase(p_x)}"
         sure_short = f"{at_equal_x.strip()}: adjusted {p_phrase(p_x)}" if p_x is not None else ""
+        if pair_x and pair_x.get("difference") is not None:
+            sign = 1.0 if pair_x.get("a") == high["group"] else -1.0
+            ends = sorted(
+                sign * pair_x[k] for k in ("ci_low", "ci_high") if pair_x.get(k) is not None
+            )
+            gap_at_equal_x = _with_unit(
+                format_value(sign * pair_x["difference"], decimals), gap_unit
+            )
+            if len(ends) == 2:
+                gap_at_equal_x += (
+                    f" ({format_value(ends[0], decimals)} to {format_value(ends[1], decimals)})"
+                )
+            gap_at_equal_x += at_equal_x
     verdict = ("The groups differ" if differ else "No clear difference shown") + at_equal_x
     top_text = f"{best['group']} {_with_unit(format_value(best[centre], decimals), unit)}"
     bottom_text = f"{worst['group']} {_with_unit(format_value(worst[centre], decimals), unit)}"
@@ -297,7 +314,7 @@ def bottom_line_row(ds: dict, entry: dict, index: int) -> BottomLineRow:
         centre=centre, top_word=top_word, bottom_word=bottom_word, top=best["group"],
         top_text=top_text, bottom=worst["group"], bottom_text=bottom_text, gap_text=gap_text,
         gap_parts=gap_parts, sure=sure, sure_level=level, sure_note=sure_note, sure_short=sure_short, x_note=x_note, reason=None,
-        points=points, headline=headline, at_equal_x=at_equal_x,
+        points=points, headline=headline, at_equal_x=at_equal_x, gap_at_equal_x=gap_at_equal_x,
     )  # fmt: skip
 
 
