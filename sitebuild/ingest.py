@@ -11,7 +11,7 @@ import csv
 import io
 import os
 import re
-from dataclasses import dataclass, field
+from dataclasses import dataclass
 from pathlib import Path
 
 import numpy as np
@@ -95,7 +95,6 @@ class Table:
     codes: np.ndarray
     columns: dict[str, np.ndarray]
     report: IngestReport
-    _cache: dict = field(default_factory=dict, repr=False)
     # Set by the streaming and Dask engines: exact summaries of every row (see
     # sitebuild.streaming.engine.Streamed), while ``codes``/``columns`` hold a bounded sample.
     exact: object | None = None
@@ -116,15 +115,26 @@ class Table:
         """
         values = self.columns[name]
         keep = ~np.isnan(values)
-        codes = self.codes[keep]
-        kept = values[keep]
-        del keep
-        # Small codes as int16 sort by radix (linear); a stable sort gives the same order.
-        narrow = codes.astype(np.int16) if len(self.groups) < 32_000 else codes
-        order = np.argsort(narrow, kind="stable")
-        bounds = np.searchsorted(codes[order], np.arange(len(self.groups) + 1))
-        sorted_values = kept[order]
+        order, bounds = group_order(self.codes[keep], len(self.groups))
+        sorted_values = values[keep][order]
         return [sorted_values[bounds[i] : bounds[i + 1]] for i in range(len(self.groups))]
+
+
+def group_order(codes: np.ndarray, n_groups: int) -> tuple[np.ndarray, np.ndarray]:
+    """Return (order, bounds): positions sorted by group code, each group's in their original
+    order, group g at ``order[bounds[g]:bounds[g + 1]]``.
+
+    Small codes sort as int16, by radix (linear); a stable sort gives the same order.
+
+    Examples
+    --------
+    >>> order, bounds = group_order(np.array([1, 0, 1, 0]), 2)
+    >>> order.tolist(), bounds.tolist()
+    ([1, 3, 0, 2], [0, 2, 4])
+    """
+    narrow = codes.astype(np.int16) if n_groups < 32_000 else codes
+    order = np.argsort(narrow, kind="stable")
+    return order, np.searchsorted(narrow[order], np.arange(n_groups + 1))
 
 
 def natural_key(label: str):

@@ -295,7 +295,6 @@ def forest_chart(entry: dict, mi: int) -> Chart | None:
     )
     layers.extend(edge_arrows(arrows, {"y": y}))
     groups = sorted({r["a"] for r in rows} | {r["b"] for r in rows})
-    # Sizes and usermeta go to the constructor: .properties() would copy the chart again.
     chart = alt.layer(
         *layers,
         data=alt.NamedData(name="pairs"),

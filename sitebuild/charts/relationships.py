@@ -271,7 +271,6 @@ def scatter_with_smooths(
             .mark_line(color=MUTED, strokeDash=[6, 4], strokeWidth=1.6)
             .encode(x=x, y=fit)
         )
-    # Sizes and usermeta go to the constructor: .properties() would copy the chart again.
     chart = alt.layer(
         *layers,
         width="container",

@@ -165,7 +165,6 @@ def mean_intervals(
         },
         MUTED,
     )
-    # Sizes and usermeta go to the constructor: .properties() would copy the chart again.
     chart = alt.layer(
         interval,
         mean,

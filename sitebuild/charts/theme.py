@@ -424,7 +424,9 @@ def to_spec(chart, datasets: dict | None = None, focus: bool = False) -> dict:
     The records are added after altair has made the dict: altair copies and walks every value
     it is given, which for a few thousand points costs more than the rest of the chart. So is
     the parameter: altair's ``add_params`` on a layered chart copies every layer, and gives
-    the same top-level entry (about a quarter of a page's chart-building time).
+    the same top-level entry (about a quarter of a page's chart-building time). For the same
+    reason a layered chart takes its sizes and usermeta in ``alt.layer(...)``, not from
+    ``.properties()``, which copies it again.
     """
     check = os.environ.get(CHECK_CHARTS_ENV) == "1"
     spec = chart.to_dict(validate=check)

@@ -27,6 +27,19 @@ MAX_CHART_GROUPS = 30  # groups drawn in distribution charts; tables keep every 
 PARALLEL_ROWS = 200_000
 
 
+def map_measures(work, items, n_rows: int) -> list:
+    """Return ``[work(item) for item in items]``, two at a time on tables of at least
+    :data:`PARALLEL_ROWS` rows; the order is kept either way. For work that draws no shared
+    random numbers, so the results are the same in any order."""
+    items = list(items)
+    if n_rows >= PARALLEL_ROWS and len(items) > 1:
+        from concurrent.futures import ThreadPoolExecutor
+
+        with ThreadPoolExecutor(max_workers=2) as pool:
+            return list(pool.map(work, items))
+    return [work(item) for item in items]
+
+
 def section_modules() -> list:
     """Return the section modules in page order (the build computes with them, the renderer
     draws with them)."""

@@ -21,10 +21,11 @@ import math
 
 import numpy as np
 
+from ..ingest import group_order
 from ..stats import practice_findings
 from ..stats.ancova import XYMoments, ancova
 from ..stats.multiplicity import METHOD_NAMES, adjust_pvalues
-from . import PARALLEL_ROWS, DataTable
+from . import DataTable, map_measures
 
 # x "explains a material share" of a measure when it accounts for at least this share of the
 # within-group variation (partial R²; 0.10 sits between the usual "medium" marks of 0.06 and
@@ -41,15 +42,6 @@ def _num(value) -> float | None:
     return value if math.isfinite(value) else None
 
 
-def _group_rows(table) -> tuple[np.ndarray, np.ndarray]:
-    """Return (row order, bounds): the rows sorted by group, each group's rows in file order,
-    group g in ``order[bounds[g]:bounds[g + 1]]`` (one radix sort instead of a mask per group)."""
-    narrow = table.codes.astype(np.int16) if len(table.groups) < 32_000 else table.codes
-    order = np.argsort(narrow, kind="stable")
-    bounds = np.searchsorted(narrow[order], np.arange(len(table.groups) + 1))
-    return order, bounds
-
-
 def _moments_memory(
     table, x: str, measure: str, degree: int, rows: tuple[np.ndarray, np.ndarray] | None = None
 ) -> tuple[list[XYMoments], tuple]:
@@ -57,7 +49,7 @@ def _moments_memory(
     both = ~(np.isnan(xs) | np.isnan(ys))
     centre = float(np.mean(xs[both])) if both.any() else 0.0
     del both
-    order, bounds = rows if rows is not None else _group_rows(table)
+    order, bounds = rows if rows is not None else group_order(table.codes, len(table.groups))
     xs, ys = xs[order], ys[order]  # (XYMoments.of leaves out the rows with a NaN)
     groups = []
     for code in range(len(table.groups)):
@@ -328,20 +320,12 @@ def compute(table, settings, rng: np.random.Generator, partial: dict | None = No
     if not x or x in table.spec.measures:
         return {}
     balance = _x_balance(partial, table, settings)
-    rows = _group_rows(table) if table.exact is None else None
+    rows = group_order(table.codes, len(table.groups)) if table.exact is None else None
 
     def entry(measure: str) -> dict:
         return _entry(table, measure, settings, partial or {}, balance, rows)
 
-    measures = list(table.spec.measures)
-    # The measures are independent and draw no random numbers; on large tables two run side
-    # by side (their work is numpy's, which releases the GIL). Same results in any order.
-    if table.n_rows >= PARALLEL_ROWS and len(measures) > 1:
-        from concurrent.futures import ThreadPoolExecutor
-
-        with ThreadPoolExecutor(max_workers=2) as pool:
-            return {"adjusted": list(pool.map(entry, measures))}
-    return {"adjusted": [entry(measure) for measure in measures]}
+    return {"adjusted": map_measures(entry, table.spec.measures, table.n_rows)}
 
 
 def charts(dataset: dict, settings) -> list:

@@ -68,7 +68,7 @@ from ..stats.pairwise import (
     tukey_hsd,
     welch_t,
 )
-from . import PARALLEL_ROWS, DataTable, sampled_caption
+from . import DataTable, map_measures, sampled_caption
 
 MAX_PAIRWISE_GROUPS = 30
 MAX_DUNNETT_GROUPS = 30
@@ -1024,13 +1024,7 @@ def compute(table, settings, rng: np.random.Generator, partial: dict | None = No
             table, job[0], settings, job[1], perm_seed, balance, pieces.get(job[0]), summaries
         )
 
-    if table.n_rows >= PARALLEL_ROWS and len(jobs) > 1:
-        from concurrent.futures import ThreadPoolExecutor
-
-        with ThreadPoolExecutor(max_workers=2) as pool:
-            entries = list(pool.map(entry_for, jobs))
-    else:
-        entries = [entry_for(job) for job in jobs]
+    entries = map_measures(entry_for, jobs, table.n_rows)
     if balance is not None:
         for entry in entries:
             entry["x_balance"] = balance  # also on measures that could not be compared

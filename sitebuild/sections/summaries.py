@@ -4,10 +4,10 @@ from __future__ import annotations
 
 import numpy as np
 
-from ..ingest import Table
+from ..ingest import Table, group_order
 from ..manifest import SiteSettings
 from ..stats.summary import NORMAL_WITHIN, Summary, describe_sorted, histogram_edges
-from . import MAX_CHART_GROUPS, PARALLEL_ROWS, Chart, DataTable
+from . import MAX_CHART_GROUPS, Chart, DataTable, map_measures
 
 MAX_OUTLIER_POINTS = 20  # per side per group: the most extreme values, enough to see them
 
@@ -34,12 +34,8 @@ def _sorted_by_group(values: np.ndarray, codes: np.ndarray, n_groups: int):
     the sorted runs for the all-groups row: cheaper than a lexsort plus a second full sort.
     """
     keep = ~np.isnan(values)
-    kept, kept_codes = values[keep], codes[keep]
-    # Small codes as int16 sort by radix (linear); a stable sort gives the same order.
-    narrow = kept_codes.astype(np.int16) if n_groups < 32_000 else kept_codes
-    order = np.argsort(narrow, kind="stable")
-    ordered = kept[order]
-    bounds = np.searchsorted(kept_codes[order], np.arange(n_groups + 1))
+    order, bounds = group_order(codes[keep], n_groups)
+    ordered = values[keep][order]
     for index in range(n_groups):
         ordered[bounds[index] : bounds[index + 1]].sort()
     # Timsort ("stable" for floats) merges already-sorted runs in O(n log groups).
@@ -142,16 +138,7 @@ def compute(table: Table, settings: SiteSettings, rng, partial: dict) -> dict:
         }
         return rows, distribution
 
-    measures = list(table.spec.measures)
-    # Measures are independent (sorting, mostly numpy's, which releases the GIL): on large
-    # tables two run side by side. The rows come back in the measures' order either way.
-    if table.n_rows >= PARALLEL_ROWS and len(measures) > 1:
-        from concurrent.futures import ThreadPoolExecutor
-
-        with ThreadPoolExecutor(max_workers=2) as pool:
-            done = list(pool.map(one, measures))
-    else:
-        done = [one(measure) for measure in measures]
+    done = map_measures(one, table.spec.measures, table.n_rows)  # sorting: numpy's, GIL-free
     summaries = [row for rows, _ in done for row in rows]
     distributions = [distribution for _, distribution in done]
     return _keys(table, summaries, distributions)

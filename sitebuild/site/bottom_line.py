@@ -163,6 +163,17 @@ def _pair(entry: dict, one: str, other: str) -> dict | None:
     return None
 
 
+def _oriented_gap(pair: dict, high: str, decimals, unit: str) -> str:
+    """Return a pair's difference as ``high`` minus the other, with its interval when known:
+    "8.9 s (3.5 to 14.3)"."""
+    sign = 1.0 if pair.get("a") == high else -1.0
+    text = _with_unit(format_value(sign * pair["difference"], decimals), unit)
+    ends = sorted(sign * pair[k] for k in ("ci_low", "ci_high") if pair.get(k) is not None)
+    if len(ends) == 2:
+        text += f" ({format_value(ends[0], decimals)} to {format_value(ends[1], decimals)})"
+    return text
+
+
 def bottom_line_row(ds: dict, entry: dict, index: int) -> BottomLineRow:
     """Return the bottom-line row of one measure from its comparison entry (results shape)."""
     measure = entry["measure"]
@@ -279,18 +290,7 @@ def bottom_line_row(ds: dict, entry: dict, index: int) -> BottomLineRow:
             sure_note = f"the groups{at_equal_x}: {p_phrase(p_x)}"
         sure_short = f"{at_equal_x.strip()}: adjusted {p_phrase(p_x)}" if p_x is not None else ""
         if pair_x and pair_x.get("difference") is not None:
-            sign = 1.0 if pair_x.get("a") == high["group"] else -1.0
-            ends = sorted(
-                sign * pair_x[k] for k in ("ci_low", "ci_high") if pair_x.get(k) is not None
-            )
-            gap_at_equal_x = _with_unit(
-                format_value(sign * pair_x["difference"], decimals), gap_unit
-            )
-            if len(ends) == 2:
-                gap_at_equal_x += (
-                    f" ({format_value(ends[0], decimals)} to {format_value(ends[1], decimals)})"
-                )
-            gap_at_equal_x += at_equal_x
+            gap_at_equal_x = _oriented_gap(pair_x, high["group"], decimals, gap_unit) + at_equal_x
     verdict = ("The groups differ" if differ else "No clear difference shown") + at_equal_x
     top_text = f"{best['group']} {_with_unit(format_value(best[centre], decimals), unit)}"
     bottom_text = f"{worst['group']} {_with_unit(format_value(worst[centre], decimals), unit)}"
@@ -302,7 +302,7 @@ def bottom_line_row(ds: dict, entry: dict, index: int) -> BottomLineRow:
     elif at_equal_x:
         headline = (
             f"{measure}: no clear difference between the groups{at_equal_x} "
-            f"(the raw gap, {gap_text} {how}, may come from {equal_x.get('x')})."
+            f"(the raw gap, {gap_text} {how}, may come from {x})."
         )
     else:
         headline = (
