@@ -9,7 +9,6 @@ from __future__ import annotations
 import dataclasses
 import hashlib
 import json
-import os
 import sys
 import time
 import zlib
@@ -27,6 +26,7 @@ from .cache import (
     file_sha256,
     vl_convert_version,
 )
+from .cores import share
 from .errors import SitebuildError
 from .manifest import Manifest, load_manifest
 from .sections import PARALLEL_ROWS, READS_RESULTS, SECTION_NAMES, section_modules
@@ -212,23 +212,15 @@ def analyse(table, manifest: Manifest, timer: Timer, say=None) -> dict:
         return keys
 
     # The summaries come first (later sections may read them); the others depend only on the
-    # table and the summaries, so on large tables they run side by side. Their heavy work is
-    # numpy sorting and searching, which releases the GIL; each has its own seeded generator,
-    # so the results are the same in any order.
+    # table and the summaries, so on large tables they share the cores (sitebuild.cores).
+    # Their heavy work is numpy sorting and searching, which releases the GIL; each has its
+    # own seeded generator, so the results are the same in any order.
     ds.update(run(0, ds))
     late = [i for i, name in enumerate(SECTION_NAMES) if name in READS_RESULTS]
     rest = [i for i in range(1, len(modules)) if i not in late]
-    if table.n_rows >= PARALLEL_ROWS and len(rest) > 1 and (os.cpu_count() or 1) > 1:
-        from concurrent.futures import ThreadPoolExecutor
-
-        snapshot = dict(ds)
-        with ThreadPoolExecutor(max_workers=2) as pool:
-            futures = [pool.submit(run, index, snapshot) for index in rest]
-            for future in futures:
-                ds.update(future.result())
-    else:
-        for index in rest:
-            ds.update(run(index, ds))
+    snapshot = dict(ds)
+    for keys in share(lambda index: run(index, snapshot), rest, table.n_rows >= PARALLEL_ROWS):
+        ds.update(keys)
     for index in late:  # these read the other sections' results
         ds.update(run(index, ds))
     return ds
@@ -588,11 +580,8 @@ def build(
                     if say:
                         say(f"{spec.name}: unchanged, results reused")
                     break
-                from .charts.theme import import_in_background
                 from .engines import read_table
                 from .results import clean
-
-                import_in_background()  # the charts' library loads while the data are read
 
                 if say:
                     say(f"{spec.name}: reading {spec.file}")

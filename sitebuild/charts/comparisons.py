@@ -14,11 +14,13 @@ from .theme import (
     INK,
     PALETTE,
     REFERENCE_COLOUR,
-    altair,
+    channel,
     dashed_when_few,
     edge_arrows,
     themed,
+    tip,
     to_spec,
+    view,
 )
 
 MAX_FOREST_ROWS = 60
@@ -199,109 +201,117 @@ def forest_chart(entry: dict, mi: int) -> Chart | None:
                 r[key] = min(max(r[key], low_edge), high_edge)
     est_name = ranked[0].get("estimate_name", "difference")
     measure = entry["measure"]
-    alt = altair()
-    y = alt.Y(
-        field="label",
-        type="nominal",
-        sort=alt.EncodingSortField(field="order", order="descending"),
+    y = channel(
+        "label",
+        "nominal",
+        sort={"field": "order", "order": "descending"},
         title=None,
-        axis=alt.Axis(labelLimit=220),
+        axis={"labelLimit": 220},
     )
     # The measure's name carries its unit ("leaf mass (g)"); short enough for a half-width chart.
     x_title = f"{est_name} in {measure}, first minus second"
     occurring = [s for s in STATUS_COLOURS if any(r["status"] == s for r in rows)]
 
-    def picked(full: float):
+    def picked(full: float) -> dict:
         # Dim the pairs that do not involve the picked group.
         test = f"{FOCUS} != null && datum.a !== {FOCUS} && datum.b !== {FOCUS}"
-        return alt.OpacityValue(condition={"test": test, "value": DIMMED}, value=full)
+        return {"condition": {"test": test, "value": DIMMED}, "value": full}
 
-    colour = alt.Color(
-        field="status",
-        type="nominal",
+    colour = channel(
+        "status",
+        "nominal",
         title="Verdict",
-        scale=alt.Scale(domain=occurring, range=[STATUS_COLOURS[s] for s in occurring]),
+        scale={"domain": occurring, "range": [STATUS_COLOURS[s] for s in occurring]},
     )
     layers = []
     if margin:
         layers.append(
-            alt.Chart(alt.Data(values=[{"low": -margin, "high": margin}]))
-            .mark_rect(color=PALETTE[1], opacity=0.12)
-            .encode(x=alt.X(field="low", type="quantitative"), x2=alt.X2(field="high"))
-        )
-    layers.append(
-        alt.Chart(alt.Data(values=[{"x": 0}]))
-        .mark_rule(color=INK, strokeDash=[4, 3])
-        .encode(x=alt.X(field="x", type="quantitative"))
-    )
-    if margin and any(r["eq_low"] is not None for r in rows):
-        layers.append(
-            alt.Chart()
-            .transform_filter("isValid(datum.eq_low) && isValid(datum.eq_high)")
-            .mark_bar(size=9, color=PALETTE[1])
-            .encode(
-                y=y,
-                x=alt.X(field="eq_low", type="quantitative"),
-                x2=alt.X2(field="eq_high"),
-                opacity=picked(0.35),
+            view(
+                "rect",
+                {"x": channel("low"), "x2": {"field": "high"}},
+                data={"values": [{"low": -margin, "high": margin}]},
+                color=PALETTE[1],
+                opacity=0.12,
             )
         )
     layers.append(
-        alt.Chart()
-        .transform_filter("isValid(datum.draw_low) && isValid(datum.draw_high)")
-        .mark_rule(strokeWidth=2.5)
-        .encode(
-            y=y,
-            x=alt.X(
-                field="draw_low",
-                type="quantitative",
-                title=x_title,
-                scale=alt.Scale(domain=[low_edge, high_edge], nice=False, zero=False),
-            ),
-            x2=alt.X2(field="draw_high"),
-            strokeDash=dashed_when_few(),
-            color=colour,
-            opacity=picked(1),
+        view("rule", {"x": channel("x")}, data={"values": [{"x": 0}]}, color=INK, strokeDash=[4, 3])
+    )
+    if margin and any(r["eq_low"] is not None for r in rows):
+        layers.append(
+            view(
+                "bar",
+                {
+                    "y": y,
+                    "x": channel("eq_low"),
+                    "x2": {"field": "eq_high"},
+                    "opacity": picked(0.35),
+                },
+                where="isValid(datum.eq_low) && isValid(datum.eq_high)",
+                size=9,
+                color=PALETTE[1],
+            )
+        )
+    layers.append(
+        view(
+            "rule",
+            {
+                "y": y,
+                "x": channel(
+                    "draw_low",
+                    title=x_title,
+                    scale={"domain": [low_edge, high_edge], "nice": False, "zero": False},
+                ),
+                "x2": {"field": "draw_high"},
+                "strokeDash": dashed_when_few(),
+                "color": colour,
+                "opacity": picked(1),
+            },
+            where="isValid(datum.draw_low) && isValid(datum.draw_high)",
+            strokeWidth=2.5,
         )
     )
     fmt = ".4~g"
     layers.append(
-        alt.Chart()
-        .mark_point(filled=True, size=90, stroke="#ffffff", strokeWidth=1)
-        .encode(
-            y=y,
-            x=alt.X(field="x", type="quantitative"),
-            color=colour,
-            shape=alt.Shape(
-                field="status",
-                type="nominal",
-                title="Verdict",
-                scale=alt.Scale(domain=occurring, range=[STATUS_SHAPES[s] for s in occurring]),
-            ),
-            opacity=picked(1),
-            tooltip=[
-                alt.Tooltip(field="label", type="nominal", title="Pair"),
-                alt.Tooltip(
-                    field="x", type="quantitative", title=f"{est_name} ({measure})", format=fmt
+        view(
+            "point",
+            {
+                "y": y,
+                "x": channel("x"),
+                "color": colour,
+                "shape": channel(
+                    "status",
+                    "nominal",
+                    title="Verdict",
+                    scale={"domain": occurring, "range": [STATUS_SHAPES[s] for s in occurring]},
                 ),
-                alt.Tooltip(field="low", type="quantitative", title="Interval low", format=fmt),
-                alt.Tooltip(field="high", type="quantitative", title="Interval high", format=fmt),
-                alt.Tooltip(field="q", type="quantitative", title="Adjusted p", format=".3g"),
-                alt.Tooltip(field="n_a", type="quantitative", title="n (first)"),
-                alt.Tooltip(field="n_b", type="quantitative", title="n (second)"),
-                alt.Tooltip(field="status", type="nominal", title="Verdict"),
-            ],
+                "opacity": picked(1),
+                "tooltip": [
+                    tip("label", "nominal", "Pair"),
+                    tip("x", "quantitative", f"{est_name} ({measure})", fmt),
+                    tip("low", "quantitative", "Interval low", fmt),
+                    tip("high", "quantitative", "Interval high", fmt),
+                    tip("q", "quantitative", "Adjusted p", ".3g"),
+                    tip("n_a", "quantitative", "n (first)"),
+                    tip("n_b", "quantitative", "n (second)"),
+                    tip("status", "nominal", "Verdict"),
+                ],
+            },
+            filled=True,
+            size=90,
+            stroke="#ffffff",
+            strokeWidth=1,
         )
     )
     layers.extend(edge_arrows(arrows, {"y": y}))
     groups = sorted({r["a"] for r in rows} | {r["b"] for r in rows})
-    chart = alt.layer(
-        *layers,
-        data=alt.NamedData(name="pairs"),
-        height=max(60, 22 * len(rows)),
-        width="container",
-        usermeta={"measure": measure, "kind": "forest", "groups": groups},
-    )
+    chart = {
+        "layer": layers,
+        "data": {"name": "pairs"},
+        "height": max(60, 22 * len(rows)),
+        "width": "container",
+        "usermeta": {"measure": measure, "kind": "forest", "groups": groups},
+    }
     shown = "" if len(ranked) == len(pairs) else f" (the {len(ranked)} largest of {len(pairs)})"
     family = entry.get("family") or {}
     adjusted = (family.get("size") or 0) > 1 and family.get("adjust") not in (None, "none")

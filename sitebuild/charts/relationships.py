@@ -11,11 +11,13 @@ from .theme import (
     MARKER_SIZE,
     MARKER_STROKE,
     MUTED,
-    altair,
+    channel,
     dimmed_unless_picked,
     group_encoding,
     themed,
+    tip,
     to_spec,
+    view,
 )
 
 NULL_FILL = "#eceff2"
@@ -163,17 +165,15 @@ def scatter_with_smooths(
     Groups are told apart by colour and shape (hollow markers, one legend titled with the group
     column's name); a whole-number x is jittered (see :func:`jittered`).
     """
-    alt = altair()
     look = group_encoding(groups, group_by or "Group", reference)
-    colour = alt.Color(**look["color"])
+    colour = look["color"]
     points, jitter = jittered(scatter["points"])
-    x = alt.X(
-        field="x",
-        type="quantitative",
+    x = channel(
+        "x",
         title=scatter["x"],
-        scale=alt.Scale(zero=False),
+        scale={"zero": False},
         # Jittered whole numbers keep whole-number ticks ("1, 2", not "1.0, 2.0").
-        **({"axis": alt.Axis(tickMinStep=1, format="d")} if jitter else {}),
+        **({"axis": {"tickMinStep": 1, "format": "d"}} if jitter else {}),
     )
     y_title = scatter["y"]
     curve_groups = {s["group"] for s in smooths if s["group"] is not None}
@@ -193,90 +193,106 @@ def scatter_with_smooths(
     overall = [
         p for s in smooths if s["group"] is None for p in s["points"] if p["fit"] is not None
     ]
-    fit = alt.Y(field="fit", type="quantitative")
+    fit = channel("fit")
     layers = [
-        alt.Chart(alt.NamedData(name="points"))
-        .mark_point(filled=False, size=MARKER_SIZE, strokeWidth=MARKER_STROKE)
-        .encode(
-            # Shape repeats the colour so groups part without colour vision (and in print);
-            # one legend, as both scales share the groups and the title.
-            shape=alt.Shape(**look["shape"]),
-            x=x,
-            y=alt.Y(field="y", type="quantitative", title=y_title, scale=alt.Scale(zero=False)),
-            color=colour,
-            opacity=dimmed_unless_picked(full=0.8),
-            tooltip=[
-                alt.Tooltip(field="group", type="nominal", title=group_by or "Group"),
-                alt.Tooltip(
-                    field="x_value" if jitter else "x", type="quantitative", title=scatter["x"]
-                ),
-                alt.Tooltip(field="y", type="quantitative", title=y_title),
-            ],
+        view(
+            "point",
+            {
+                # Shape repeats the colour so groups part without colour vision (and in
+                # print); one legend, as both scales share the groups and the title.
+                "shape": look["shape"],
+                "x": x,
+                "y": channel("y", title=y_title, scale={"zero": False}),
+                "color": colour,
+                "opacity": dimmed_unless_picked(full=0.8),
+                "tooltip": [
+                    tip("group", "nominal", group_by or "Group"),
+                    tip("x_value" if jitter else "x", "quantitative", scatter["x"]),
+                    tip("y", "quantitative", y_title),
+                ],
+            },
+            data={"name": "points"},
+            filled=False,
+            size=MARKER_SIZE,
+            strokeWidth=MARKER_STROKE,
         )
     ]
     # Named datasets: each curve's rows are shipped once and shared by its band and line layers.
     datasets = {"points": points, "curves": group_curves, "overall": overall}
     has_band = "isValid(datum.low) && isValid(datum.high)"
-    band = {"y": alt.Y(field="low", type="quantitative"), "y2": alt.Y2(field="high")}
+    band = {"y": channel("low"), "y2": {"field": "high"}}
     if group_curves and group_bands:
         layers.append(
-            alt.Chart(alt.NamedData(name="curves"))
-            .transform_filter(has_band)
-            .mark_area()
-            .encode(x=x, color=colour, opacity=dimmed_unless_picked(full=0.12), **band)
+            view(
+                "area",
+                {"x": x, "color": colour, "opacity": dimmed_unless_picked(full=0.12), **band},
+                data={"name": "curves"},
+                where=has_band,
+            )
         )
     if group_curves:
         layers.append(
-            alt.Chart(alt.NamedData(name="curves"))
-            .mark_line(strokeWidth=2.2)
-            .encode(
-                x=x,
-                y=fit,
-                color=colour,
-                detail=alt.Detail(field="group", type="nominal"),
-                opacity=dimmed_unless_picked(),
+            view(
+                "line",
+                {
+                    "x": x,
+                    "y": fit,
+                    "color": colour,
+                    "detail": channel("group", "nominal"),
+                    "opacity": dimmed_unless_picked(),
+                },
+                data={"name": "curves"},
+                strokeWidth=2.2,
             )
         )
     if overall:
-        overall_data = alt.NamedData(name="overall")
+        overall_data = {"name": "overall"}
         layers.append(
-            alt.Chart(overall_data)
-            .transform_filter(has_band)
-            .mark_area(color=INK, opacity=0.15)
-            .encode(x=x, **band)
+            view(
+                "area", {"x": x, **band}, data=overall_data, where=has_band, color=INK, opacity=0.15
+            )
         )
         # A white casing under the all-rows smooth keeps it apart from the group lines.
         layers.append(
-            alt.Chart(overall_data).mark_line(color="#ffffff", strokeWidth=5.5).encode(x=x, y=fit)
+            view("line", {"x": x, "y": fit}, data=overall_data, color="#ffffff", strokeWidth=5.5)
         )
         layers.append(
-            alt.Chart(overall_data)
-            .mark_line(color=INK, strokeWidth=3)
-            .encode(
-                x=x,
-                y=fit,
-                tooltip=[
-                    alt.Tooltip(field="x", type="quantitative", title=scatter["x"]),
-                    alt.Tooltip(field="fit", type="quantitative", title="smooth, all rows"),
-                    alt.Tooltip(field="low", type="quantitative", title="band low"),
-                    alt.Tooltip(field="high", type="quantitative", title="band high"),
-                ],
+            view(
+                "line",
+                {
+                    "x": x,
+                    "y": fit,
+                    "tooltip": [
+                        tip("x", "quantitative", scatter["x"]),
+                        tip("fit", "quantitative", "smooth, all rows"),
+                        tip("low", "quantitative", "band low"),
+                        tip("high", "quantitative", "band high"),
+                    ],
+                },
+                data=overall_data,
+                color=INK,
+                strokeWidth=3,
             )
         )
     if line and line["slope"] is not None and overall:
         lo, hi = overall[0]["x"], overall[-1]["x"]
         ends = [{"x": v, "fit": line["intercept"] + line["slope"] * v} for v in (lo, hi)]
         layers.append(
-            alt.Chart(alt.Data(values=ends))
-            .mark_line(color=MUTED, strokeDash=[6, 4], strokeWidth=1.6)
-            .encode(x=x, y=fit)
+            view(
+                "line",
+                {"x": x, "y": fit},
+                data={"values": ends},
+                color=MUTED,
+                strokeDash=[6, 4],
+                strokeWidth=1.6,
+            )
         )
-    chart = alt.layer(
-        *layers,
-        width="container",
-        height=300,
-        usermeta={"measure": y_title, "kind": "scatter", "groups": list(groups)},
-    )
+    chart = {
+        "layer": layers,
+        "width": "container",
+        "height": 300,
+        "usermeta": {"measure": y_title, "kind": "scatter", "groups": list(groups)},
+    }
     return to_spec(chart, datasets, focus=True)
 
 
@@ -294,7 +310,7 @@ def with_date_axis(spec: dict, origin_ms: int) -> dict:
         layer["transform"] = [when, *layer.get("transform", [])]
         title = encoding["x"].get("title")
         encoding["x"] = {"field": "when", "type": "temporal", "title": title}
-        for tip in encoding.get("tooltip", []):
-            if tip.get("field") == "x":
-                tip.update(field="when", type="temporal", format="%Y-%m-%d %H:%M")
+        for line in encoding.get("tooltip", []):
+            if line.get("field") == "x":
+                line.update(field="when", type="temporal", format="%Y-%m-%d %H:%M")
     return spec

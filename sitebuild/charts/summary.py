@@ -7,7 +7,7 @@ from .theme import (
     MARKER_SIZE,
     MARKER_STROKE,
     MUTED,
-    altair,
+    channel,
     dashed_when_few,
     dimmed_unless_picked,
     edge_arrows,
@@ -15,7 +15,9 @@ from .theme import (
     group_colour_scale,
     group_encoding,
     themed,
+    tip,
     to_spec,
+    view,
     with_focus,
 )
 
@@ -115,67 +117,67 @@ def mean_intervals(
     groups = group_encoding(all_groups, group_by, reference, legend=False)
     y = _group_axis(shown)
     fmt = value_format(rows)
-    alt = altair()
     tooltip = [
-        alt.Tooltip(field="group", type="nominal", title=group_by or "Group"),
-        alt.Tooltip(field="mean", type="quantitative", title=f"Mean {measure}", format=fmt),
-        alt.Tooltip(field="low", type="quantitative", title="CI low", format=fmt),
-        alt.Tooltip(field="high", type="quantitative", title="CI high", format=fmt),
-        alt.Tooltip(field="n", type="quantitative", title="n"),
+        tip("group", "nominal", group_by or "Group"),
+        tip("mean", "quantitative", f"Mean {measure}", fmt),
+        tip("low", "quantitative", "CI low", fmt),
+        tip("high", "quantitative", "CI high", fmt),
+        tip("n", "quantitative", "n"),
     ]
-    x_scale = alt.Scale(zero=False, nice=False, **({"domain": list(extent)} if extent else {}))
-    y = alt.Y(field="group", type="nominal", scale=alt.Scale(domain=shown), title=None)
-    colour = alt.Color(**groups["color"])
-    interval = (
-        alt.Chart()
-        .transform_filter("isValid(datum.draw_low) && isValid(datum.draw_high)")
-        .mark_rule(strokeWidth=2.5, clip=True)
-        .encode(
-            x=alt.X(field="draw_low", type="quantitative", title=measure, scale=x_scale),
-            x2=alt.X2(field="draw_high"),
-            y=y,
-            color=colour,
-            strokeDash=dashed_when_few(),
-            opacity=dimmed_unless_picked(),
-            tooltip=tooltip,
-        )
+    x_scale = {"zero": False, "nice": False, **({"domain": list(extent)} if extent else {})}
+    colour = dict(groups["color"])
+    interval = view(
+        "rule",
+        {
+            "x": channel("draw_low", title=measure, scale=x_scale),
+            "x2": {"field": "draw_high"},
+            "y": y,
+            "color": colour,
+            "strokeDash": dashed_when_few(),
+            "opacity": dimmed_unless_picked(),
+            "tooltip": tooltip,
+        },
+        where="isValid(datum.draw_low) && isValid(datum.draw_high)",
+        strokeWidth=2.5,
+        clip=True,
     )
     # Filled in the group's colour; a group too small to trust is left hollow.
-    mean = (
-        alt.Chart()
-        .mark_point(filled=True, size=MARKER_SIZE * 1.3, strokeWidth=MARKER_STROKE + 0.4, clip=True)
-        .encode(
-            x=alt.X(field="mean", type="quantitative"),
-            y=y,
-            stroke=alt.Stroke(**groups["color"]),
-            fill=alt.Fill(**groups["color"], condition={"test": "datum.few", "value": "#ffffff"}),
-            shape=alt.Shape(**groups["shape"]),
-            opacity=dimmed_unless_picked(few=True),
-            tooltip=tooltip,
-        )
+    mean = view(
+        "point",
+        {
+            "x": channel("mean"),
+            "y": y,
+            "stroke": dict(groups["color"]),
+            "fill": {**groups["color"], "condition": {"test": "datum.few", "value": "#ffffff"}},
+            "shape": dict(groups["shape"]),
+            "opacity": dimmed_unless_picked(few=True),
+            "tooltip": tooltip,
+        },
+        filled=True,
+        size=MARKER_SIZE * 1.3,
+        strokeWidth=MARKER_STROKE + 0.4,
+        clip=True,
     )
     arrows = edge_arrows(
         arrows,
         {
             "y": y,
             "tooltip": [
-                alt.Tooltip(field="group", type="nominal", title=group_by or "Group"),
-                alt.Tooltip(field="n", type="quantitative", title="n"),
+                tip("group", "nominal", group_by or "Group"),
+                tip("n", "quantitative", "n"),
             ],
         },
         MUTED,
     )
-    chart = alt.layer(
-        interval,
-        mean,
-        *arrows,
-        data=alt.NamedData(name="means"),
+    chart = {
+        "layer": [interval, mean, *arrows],
+        "data": {"name": "means"},
         # A fixed height of one row per group (a "step" height would make Vega-Lite drop
         # the fit to the container's width with a warning).
-        height=ROW_HEIGHT * max(1, len(shown)),
-        width="container",
-        usermeta={"measure": measure, "kind": "means", "groups": list(all_groups)},
-    )
+        "height": ROW_HEIGHT * max(1, len(shown)),
+        "width": "container",
+        "usermeta": {"measure": measure, "kind": "means", "groups": list(all_groups)},
+    }
     return to_spec(chart, {"means": values}, focus=True)
 
 

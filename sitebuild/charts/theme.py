@@ -6,8 +6,6 @@ import copy
 import functools
 import math
 import os
-import sys
-import threading
 
 # Our group palette, in our own order: crimson, teal, ochre, violet, sky, brown, navy, orange.
 # Chosen so that every two of them, and each against the neutral reference grey, stay at least
@@ -333,105 +331,110 @@ def with_focus(spec: dict, groups: list[str] | None = None) -> dict:
     return out
 
 
+def view(mark: str, encoding: dict, data: dict | None = None, where: str | None = None, **look):
+    """Return one layer of a layered Vega-Lite chart: a ``mark`` of that type with ``look``
+    (its properties), ``encoding``, optional ``data`` and an optional filter expression
+    ``where`` (rows for which it is false are not drawn).
+
+    Examples
+    --------
+    >>> view("rule", {"x": {"field": "x", "type": "quantitative"}}, color="#000")
+    {'mark': {'type': 'rule', 'color': '#000'}, 'encoding': {'x': {'field': 'x', 'type': 'quantitative'}}}
+    """
+    layer: dict = {} if data is None else {"data": data}
+    layer["mark"] = {"type": mark, **look}
+    layer["encoding"] = encoding
+    if where is not None:
+        layer["transform"] = [{"filter": where}]
+    return layer
+
+
+def channel(field: str, kind: str = "quantitative", **more) -> dict:
+    """Return an encoding channel: a ``field`` of type ``kind`` with ``more`` (title, scale,
+    axis, format ...). A ``None`` value is kept: it switches that part off in Vega-Lite."""
+    return {"field": field, "type": kind, **more}
+
+
+def tip(field: str, kind: str, title: str, fmt: str | None = None) -> dict:
+    """Return one tooltip line: ``title`` and the row's ``field`` (formatted with ``fmt``)."""
+    return {"field": field, "type": kind, "title": title, **({"format": fmt} if fmt else {})}
+
+
 def edge_arrows(arrows: list[dict], encoding: dict, colour: str = INK) -> list:
-    """Return altair point layers marking intervals cut at the axis' edge: a left-pointing
+    """Return point layers marking intervals cut at the axis' edge: a left-pointing
     triangle for rows of ``arrows`` with ``shape`` "triangle-left", a right-pointing one for
     the rest; ``encoding`` adds channels (y, tooltip). One layer per side, and only for a side
     that has rows (an empty layer makes Vega warn)."""
-    alt = altair()
     layers = []
     for shape in ("triangle-left", "triangle-right"):
         rows = [a for a in arrows if a["shape"] == shape]
         if rows:
             layers.append(
-                alt.Chart(alt.Data(values=rows))
-                .mark_point(filled=True, size=60, shape=shape, color=colour)
-                .encode(x=alt.X(field="edge", type="quantitative"), **encoding)
+                view(
+                    "point",
+                    {"x": channel("edge"), **encoding},
+                    data={"values": rows},
+                    filled=True,
+                    size=60,
+                    shape=shape,
+                    color=colour,
+                )
             )
     return layers
 
 
-def dimmed_unless_picked(few: bool = False, full: float = 1.0):
-    """Return an altair opacity rule: ``full`` for the picked group (or when none is picked),
+def dimmed_unless_picked(few: bool = False, full: float = 1.0) -> dict:
+    """Return an opacity channel: ``full`` for the picked group (or when none is picked),
     faint for the others; with ``few``, rows flagged ``few`` at :data:`FEW_OPACITY`."""
-    conditions = [{"test": f"{FOCUS} != null && datum.group !== {FOCUS}", "value": DIMMED}]
-    if few:
-        conditions.append({"test": "datum.few", "value": FEW_OPACITY * full})
-    # A channel object, not alt.when(): that path re-reads the schema (about 60 ms a call).
-    return altair().OpacityValue(condition=conditions, value=full)
+    return focus_opacity(few, full)
 
 
-def dashed_when_few():
-    """Return an altair stroke-dash rule: dashed for rows flagged ``few``, solid otherwise."""
-    return altair().StrokeDashValue(condition={"test": "datum.few", "value": [3, 3]}, value=[1, 0])
+def dashed_when_few() -> dict:
+    """Return a stroke-dash channel: dashed for rows flagged ``few``, solid otherwise."""
+    return {"condition": {"test": "datum.few", "value": [3, 3]}, "value": [1, 0]}
 
 
-# Charts are made with altair and turned into Vega-Lite dicts at build time. Altair is imported
-# on first use only (about 1.6 s on an idle machine), so --help, check and a rebuild that
-# draws nothing never pay for it. Checking every spec against the Vega-Lite schema costs about
-# 40 % more per chart (8 ms of 21 ms CPU, benchmarks/chart_build.py): on in the tests
-# (SITEBUILD_CHECK_CHARTS=1), off in builds.
+# Charts are Vega-Lite dicts made here directly. The tests check every spec made by
+# :func:`to_spec` against the Vega-Lite schema (SITEBUILD_CHECK_CHARTS=1, using the schema
+# and validator that altair ships); builds skip the check.
 CHECK_CHARTS_ENV = "SITEBUILD_CHECK_CHARTS"
 
 
 @functools.cache
-def altair():
-    """Return the altair module with our look registered and enabled (once per process)."""
-    import altair as alt
+def _vega_lite_validator(top: str):
+    import jsonschema
+    from altair.vegalite.v6.schema.core import load_schema
 
-    @alt.theme.register("sitebuild", enable=True)
-    def _look():
-        return {"config": copy.deepcopy(CONFIG)}
-
-    if os.environ.get(CHECK_CHARTS_ENV) != "1":
-        # altair checks every part against the schema as it is made (its "debug mode"):
-        # about an eighth of a page's chart time. The tests check whole specs instead (above).
-        from altair.utils.schemapi import disable_debug_mode
-
-        disable_debug_mode()
-    return alt
+    whole = load_schema()
+    # Checked against the one top-level kind the spec is (not the schema's root, which tries
+    # every kind in turn: ten times slower).
+    schema = {"$ref": f"#/definitions/{top}", "definitions": whole["definitions"]}
+    return jsonschema.validators.validator_for(whole)(schema)
 
 
-def import_in_background() -> None:
-    """Start importing altair on a side thread, so the import overlaps reading the data.
+def check_spec(spec: dict) -> None:
+    """Raise ``ValueError`` when ``spec`` is not a valid Vega-Lite specification."""
+    import jsonschema
 
-    Reading a file spends most of its time in pandas' and pyarrow's parsers, which release
-    the GIL; the import (about 0.4 s of Python) then costs no wall time. The first chart
-    waits for it on Python's import lock. Idempotent: a second call starts nothing.
-    """
-    global _import_started
-    if _import_started or "altair" in sys.modules:
-        return
-    _import_started = True
-
-    def load():
-        try:
-            altair()
-        except Exception:  # the first chart imports it again and reports any failure there
-            pass
-
-    threading.Thread(target=load, name="sitebuild-import-altair", daemon=True).start()
+    top = "TopLevelLayerSpec" if "layer" in spec else "TopLevelUnitSpec"
+    error = jsonschema.exceptions.best_match(_vega_lite_validator(top).iter_errors(spec))
+    if error is not None:
+        raise ValueError(f"not a valid Vega-Lite spec: {error.message}")
 
 
-_import_started = False
-
-
-def to_spec(chart, datasets: dict | None = None, focus: bool = False) -> dict:
-    """Return an altair chart as a themed Vega-Lite dict (see :func:`themed`), with
+def to_spec(chart: dict, datasets: dict | None = None, focus: bool = False) -> dict:
+    """Return a layered chart as a themed Vega-Lite dict (see :func:`themed`), with
     ``datasets`` (name -> records) as its named data and, with ``focus``, the page-wide
-    ``focus`` parameter (the highlighted group's label, or null) at its top level.
-
-    The records are added after altair has made the dict: altair copies and walks every value
-    it is given, which for a few thousand points costs more than the rest of the chart. So is
-    the parameter: altair's ``add_params`` on a layered chart copies every layer, and gives
-    the same top-level entry (about a quarter of a page's chart-building time). For the same
-    reason a layered chart takes its sizes and usermeta in ``alt.layer(...)``, not from
-    ``.properties()``, which copies it again.
-    """
-    check = os.environ.get(CHECK_CHARTS_ENV) == "1"
-    spec = chart.to_dict(validate=check)
+    ``focus`` parameter (the highlighted group's label, or null) at its top level."""
+    spec = dict(chart)
     if focus:
         spec["params"] = [*spec.get("params", []), {"name": FOCUS, "value": None}]
     if datasets:
         spec["datasets"] = {**spec.get("datasets", {}), **datasets}
-    return themed(spec)
+    out = themed(spec)
+    if os.environ.get(CHECK_CHARTS_ENV) == "1":
+        # Every part of the spec, with the first rows of each dataset: checking thousands of
+        # records against the schema's alternatives takes half a second and adds nothing.
+        named = out.get("datasets", {})
+        check_spec({**out, "datasets": {name: rows[:3] for name, rows in named.items()}})
+    return out

@@ -28,16 +28,13 @@ PARALLEL_ROWS = 200_000
 
 
 def map_measures(work, items, n_rows: int) -> list:
-    """Return ``[work(item) for item in items]``, two at a time on tables of at least
-    :data:`PARALLEL_ROWS` rows; the order is kept either way. For work that draws no shared
-    random numbers, so the results are the same in any order."""
-    items = list(items)
-    if n_rows >= PARALLEL_ROWS and len(items) > 1:
-        from concurrent.futures import ThreadPoolExecutor
+    """Return ``[work(item) for item in items]``, in order; on tables of at least
+    :data:`PARALLEL_ROWS` rows the items are shared with any free core (see
+    :mod:`sitebuild.cores`). For work that draws no shared random numbers, so the results are
+    the same in any order."""
+    from ..cores import share
 
-        with ThreadPoolExecutor(max_workers=2) as pool:
-            return list(pool.map(work, items))
-    return [work(item) for item in items]
+    return share(work, items, parallel=n_rows >= PARALLEL_ROWS)
 
 
 def section_modules() -> list:

@@ -39,6 +39,7 @@ import numpy as np
 from scipy import stats
 
 from ..stats import findings as findings_mod
+from ..stats.distributions import norm_sf
 from ..stats.from_moments import brown_forsythe_from_stats, moment_sample
 from ..stats.letters import compact_letters
 from ..stats.multiplicity import METHOD_NAMES, adjust_pvalues
@@ -266,7 +267,7 @@ def _skew_test_p(g1: float, n: int) -> float:
     alpha = math.sqrt(2.0 / (w2 - 1))
     y = 1.0 if y == 0 else y
     z = delta * math.log(y / alpha + math.sqrt((y / alpha) ** 2 + 1))
-    return float(2 * stats.norm.sf(abs(z)))
+    return 2 * norm_sf(abs(z))
 
 
 def _omnibus(

@@ -11,6 +11,7 @@ import math
 
 import numpy as np
 
+from ..cores import share
 from ..stats.correlation import CorrelationTable, correlation_tables, pearson_from_comoments
 from ..stats.curvature import RULE, curvature_check, straight_line, straight_line_from_comoments
 from ..stats.loess import loess
@@ -454,20 +455,14 @@ def compute(table, settings, rng: np.random.Generator, partial: dict | None = No
             out.append(fitted)
         return out
 
-    # The smooths draw no random numbers, so on large tables they are fitted on a second
+    # The smooths draw no random numbers, so on large tables they may be fitted by another
     # thread while the correlations (which do) run here; the results are the same either way.
-    if table.n_rows >= PARALLEL_ROWS and x_name:
-        from concurrent.futures import ThreadPoolExecutor
+    def correlate():
+        return _correlations(table, names, settings, rng, drawn if wide else chosen)
 
-        with ThreadPoolExecutor(max_workers=1) as pool:
-            pending = pool.submit(smooth_scopes)
-            correlations, family = _correlations(
-                table, names, settings, rng, drawn if wide else chosen
-            )
-            smoothed = pending.result()
-    else:
-        correlations, family = _correlations(table, names, settings, rng, drawn if wide else chosen)
-        smoothed = smooth_scopes()
+    (correlations, family), smoothed = share(
+        lambda job: job(), [correlate, smooth_scopes], parallel=table.n_rows >= PARALLEL_ROWS
+    )
     pearson_r = {}
     for c in correlations:
         if c["method"] == "pearson":

@@ -16,6 +16,7 @@ from dataclasses import dataclass
 import numpy as np
 from scipy import stats
 
+from .distributions import norm_ppf, norm_sf, t_cdf, t_ppf, t_sf
 from .omnibus import group_moments
 
 # Mann–Whitney's exact null distribution is used when there are no ties and both groups have
@@ -109,8 +110,8 @@ def welch_t(
     if not se > 0:
         raise ValueError("both groups have no variation")
     t = diff / se
-    p = float(2 * stats.t.sf(abs(t), df))
-    q = float(stats.t.ppf(0.5 + confidence / 2, df))
+    p = 2 * t_sf(abs(t), df)
+    q = t_ppf(0.5 + confidence / 2, df)
     return WelchTResult(t, df, p, diff, diff - q * se, diff + q * se, se, confidence)
 
 
@@ -341,7 +342,7 @@ def _mwu_from_u(m: int, n: int, u: float, tie_term: float) -> MannWhitneyResult:
     if not var > 0:
         return MannWhitneyResult(u, math.nan, "normal, tie-corrected", tie_term)
     z = max(0.0, abs(u - mn / 2.0) - 0.5) / math.sqrt(var)
-    p = float(min(1.0, 2 * stats.norm.sf(z)))
+    p = min(1.0, 2 * norm_sf(z))
     return MannWhitneyResult(u, p, "normal, tie-corrected, continuity-corrected", tie_term)
 
 
@@ -588,7 +589,7 @@ def _ci_rank(m: int, n: int, confidence: float, tie_term: float) -> int:
         return int(np.searchsorted(cdf, alpha / 2 + 1e-12, side="right"))
     big_n = m + n
     sd = math.sqrt(mn / 12.0 * ((big_n + 1) - tie_term / (big_n * (big_n - 1))))
-    return int(math.floor(mn / 2.0 - stats.norm.ppf(1 - alpha / 2) * sd))
+    return int(math.floor(mn / 2.0 - norm_ppf(1 - alpha / 2) * sd))
 
 
 def hodges_lehmann(
@@ -694,7 +695,7 @@ def hedges_g(
     j = 1 - 3 / (4 * (nx + ny) - 9)
     g = j * d
     se = math.sqrt((nx + ny) / (nx * ny) + g**2 / (2 * (nx + ny)))
-    z = float(stats.norm.ppf(0.5 + confidence / 2))
+    z = norm_ppf(0.5 + confidence / 2)
     return EffectInterval("Hedges' g", g, g - z * se, g + z * se, confidence)
 
 
@@ -756,7 +757,7 @@ def cliffs_delta(
     ) / (mn * (m - 1) * (n - 1))
     s2 = max(s2, (1 - delta**2) / (mn - 1))
     s = math.sqrt(s2)
-    z = float(stats.norm.ppf(0.5 + confidence / 2))
+    z = norm_ppf(0.5 + confidence / 2)
     one = 1 - delta**2
     root = z * s * math.sqrt(one**2 + z**2 * s2)
     den = one + z**2 * s2
@@ -836,8 +837,8 @@ def tost_welch(
     xs, ys = Sample.of(x), Sample.of(y)
     se, df = _welch_se_df(xs, ys)
     diff = xs.mean - ys.mean
-    p_lower = float(stats.t.sf((diff + margin) / se, df))
-    p_upper = float(stats.t.cdf((diff - margin) / se, df))
+    p_lower = t_sf((diff + margin) / se, df)
+    p_upper = t_cdf((diff - margin) / se, df)
     p = max(p_lower, p_upper)
     return EquivalenceResult(margin, p_lower, p_upper, p, bool(p < alpha), alpha)
 
@@ -867,7 +868,7 @@ def detectable_difference(
     """
     xs, ys = Sample.of(x), Sample.of(y)
     se, df = _welch_se_df(xs, ys)
-    return float((stats.t.ppf(1 - alpha / 2, df) + stats.t.ppf(power, df)) * se)
+    return (t_ppf(1 - alpha / 2, df) + t_ppf(power, df)) * se
 
 
 @dataclass(frozen=True)

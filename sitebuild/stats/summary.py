@@ -147,7 +147,7 @@ def spread_fields(out: dict, reasons: dict, sd: float, n: int, mean: float, leve
     Where the sd, or the interval's ends, exceed the largest double, the fields stay None and
     ``reasons`` says why (shape fields too, which need the sd).
     """
-    from scipy import stats
+    from .distributions import t_ppf
 
     if not math.isfinite(sd):
         for key in ("sd", "se", "ci", "share_within", "skewness", "excess_kurtosis"):
@@ -156,7 +156,7 @@ def spread_fields(out: dict, reasons: dict, sd: float, n: int, mean: float, leve
         return False
     out["sd"] = sd
     out["se"] = sd / math.sqrt(n)
-    half = float(stats.t.ppf((1 + level) / 2, n - 1)) * out["se"]
+    half = t_ppf((1 + level) / 2, n - 1) * out["se"]
     out["ci_low"], out["ci_high"] = mean - half, mean + half
     if not (math.isfinite(out["ci_low"]) and math.isfinite(out["ci_high"])):
         out["ci_low"] = out["ci_high"] = None
