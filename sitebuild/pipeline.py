@@ -29,7 +29,13 @@ from .cache import (
 from .cores import share
 from .errors import SitebuildError
 from .manifest import Manifest, load_manifest
-from .sections import PARALLEL_ROWS, READS_RESULTS, SECTION_NAMES, section_modules
+from .sections import (
+    PARALLEL_ROWS,
+    READS_RESULTS,
+    READS_SUMMARIES,
+    SECTION_NAMES,
+    section_modules,
+)
 
 
 @dataclass(frozen=True)
@@ -211,16 +217,31 @@ def analyse(table, manifest: Manifest, timer: Timer, say=None) -> dict:
             say(f"{spec.name}: {name} ({time.perf_counter() - began:.2f} s)")
         return keys
 
-    # The summaries come first (later sections may read them); the others depend only on the
-    # table and the summaries, so on large tables they share the cores (sitebuild.cores).
-    # Their heavy work is numpy sorting and searching, which releases the GIL; each has its
-    # own seeded generator, so the results are the same in any order.
-    ds.update(run(0, ds))
+    # The comparisons read the summaries (they repeat each group's n, mean and sd), and the
+    # late sections read everything before them; the rest depend on the table alone. So the
+    # summaries and then the comparisons form one job, and every job shares the cores with
+    # the others (sitebuild.cores). The heavy work is numpy sorting and searching, which
+    # releases the GIL; each section has its own seeded generator, so the results are the
+    # same in any order. Keys are added in page order, whatever finished first.
     late = [i for i, name in enumerate(SECTION_NAMES) if name in READS_RESULTS]
-    rest = [i for i in range(1, len(modules)) if i not in late]
-    snapshot = dict(ds)
-    for keys in share(lambda index: run(index, snapshot), rest, table.n_rows >= PARALLEL_ROWS):
-        ds.update(keys)
+    after_summaries = [i for i, name in enumerate(SECTION_NAMES) if name in READS_SUMMARIES]
+    chains = [[0, *after_summaries]] + [
+        [i] for i in range(1, len(modules)) if i not in late and i not in after_summaries
+    ]
+
+    def run_chain(chain: list[int]) -> dict[int, dict]:
+        partial = dict(ds)
+        done: dict[int, dict] = {}
+        for index in chain:
+            done[index] = run(index, partial)
+            partial.update(done[index])
+        return done
+
+    finished: dict[int, dict] = {}
+    for done in share(run_chain, chains, table.n_rows >= PARALLEL_ROWS):
+        finished.update(done)
+    for index in sorted(finished):
+        ds.update(finished[index])
     for index in late:  # these read the other sections' results
         ds.update(run(index, ds))
     return ds

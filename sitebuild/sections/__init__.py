@@ -21,6 +21,9 @@ SECTION_NAMES = ("summaries", "relationships", "comparisons", "adjusted", "capab
 # Sections that read other sections' results (curve flags, the x-balance check): the pipeline
 # runs them after all the others, with every earlier key in ``partial``.
 READS_RESULTS = frozenset({"adjusted"})
+# Sections that read the summaries' rows (and nothing else computed): they run after the
+# summaries, beside the sections that need the table alone.
+READS_SUMMARIES = frozenset({"comparisons", "capability"})
 MAX_CHART_GROUPS = 30  # groups drawn in distribution charts; tables keep every group
 # From this many rows the analysis uses two threads (below it, threads cost more than they
 # save); the heavy work is numpy sorting and searching, which releases the GIL.

@@ -7,6 +7,7 @@ Results keys: ``correlations``, ``smooths``, ``relationships`` (contract), and
 
 from __future__ import annotations
 
+import functools
 import math
 
 import numpy as np
@@ -424,44 +425,43 @@ def compute(table, settings, rng: np.random.Generator, partial: dict | None = No
     level = settings.confidence
     span = spec.smooth_span
 
-    def smooth_scopes() -> list[list[tuple]]:
-        """Per measure: (label, smooth, straight line) of each scope (all rows, then each
-        drawn group); the scopes' rows are let go as soon as they are fitted."""
-        if not x_name:
-            return []
+    # Each scope's x is one array for every measure, so the smooths share its bins.
+    x_scopes: list = []
+    labels: list = []
+    shared: dict = {}
+    if x_name:
         x_all = table.values(x_name)
         xs = x_all[order]  # rows in group order, once for every measure
-        # Each scope's x is one array for every measure, so the smooths share its bins.
         x_scopes = [x_all] + [xs[bounds[g] : bounds[g + 1]] for g in drawn]
         labels = [None] + [table.groups[g] for g in drawn]
-        shared: dict = {}
-        out = []
-        for measure in measures:
-            y_all = table.values(measure)
-            ys = y_all[order]
-            y_scopes = [y_all] + [ys[bounds[g] : bounds[g + 1]] for g in drawn]
-            scopes = list(zip(labels, x_scopes, y_scopes, strict=True))
-            fitted = []
-            del ys, y_scopes  # the scopes hold what they need (views)
-            for label, xv, yv in scopes:
-                keep = ~(np.isnan(xv) | np.isnan(yv))
-                if not keep.all():
-                    xv, yv = xv[keep], yv[keep]
-                del keep
-                fit = loess(
-                    xv, yv, span, spec.smooth_degree, spec.smooth_robust, level, shared=shared
-                )
-                fitted.append((label, fit, straight_line(xv, yv, level)))
-            out.append(fitted)
-        return out
+        del xs  # the scopes hold what they need (views)
 
-    # The smooths draw no random numbers, so on large tables they may be fitted by another
-    # thread while the correlations (which do) run here; the results are the same either way.
+    def smooth(measure: str) -> list[tuple]:
+        """(label, smooth, straight line) of each scope of ``measure``: all rows, then each
+        drawn group; the scopes' rows are let go as soon as they are fitted."""
+        y_all = table.values(measure)
+        ys = y_all[order]
+        y_scopes = [y_all] + [ys[bounds[g] : bounds[g + 1]] for g in drawn]
+        del ys
+        fitted = []
+        for label, xv, yv in zip(labels, x_scopes, y_scopes, strict=True):
+            keep = ~(np.isnan(xv) | np.isnan(yv))
+            if not keep.all():
+                xv, yv = xv[keep], yv[keep]
+            del keep
+            fit = loess(xv, yv, span, spec.smooth_degree, spec.smooth_robust, level, shared=shared)
+            fitted.append((label, fit, straight_line(xv, yv, level)))
+        return fitted
+
     def correlate():
         return _correlations(table, names, settings, rng, drawn if wide else chosen)
 
-    (correlations, family), smoothed = share(
-        lambda job: job(), [correlate, smooth_scopes], parallel=table.n_rows >= PARALLEL_ROWS
+    # The smooths draw no random numbers, so on large tables free cores fit them (one job per
+    # measure) while the correlations (which do) run here; the results are the same either
+    # way. Two threads may both make a scope's shared bins: the same arrays, made twice.
+    jobs = [correlate] + ([functools.partial(smooth, m) for m in measures] if x_name else [])
+    (correlations, family), *smoothed = share(
+        lambda job: job(), jobs, parallel=table.n_rows >= PARALLEL_ROWS
     )
     pearson_r = {}
     for c in correlations:

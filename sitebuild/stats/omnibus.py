@@ -77,7 +77,7 @@ def _pivot(groups: Sequence[np.ndarray]) -> float:
     return 0.0
 
 
-def _moments(groups: Sequence[np.ndarray] | Sequence[GroupMoments]) -> list[GroupMoments]:
+def moments_of(groups: Sequence[np.ndarray] | Sequence[GroupMoments]) -> list[GroupMoments]:
     """Moments of each group; the means are relative to one common pivot.
 
     Every statistic built here depends only on differences of means and on centred sums of
@@ -161,7 +161,7 @@ def one_way_anova(groups: Sequence[np.ndarray]) -> AnovaResult:
     >>> round(one_way_anova([np.array([1., 2, 3]), np.array([2., 3, 4])]).statistic, 4)
     1.5
     """
-    moments = _moments(groups)
+    moments = moments_of(groups)
     k = len(moments)
     n = sum(m.n for m in moments)
     if n - k < 1:
@@ -227,7 +227,7 @@ def welch_anova(groups: Sequence[np.ndarray]) -> WelchAnovaResult:
     >>> r.df1
     2.0
     """
-    moments = _moments(groups)
+    moments = moments_of(groups)
     if any(m.n < 2 or not m.ss > 0 for m in moments):
         raise ValueError("Welch's ANOVA needs at least two distinct values in every group")
     k = len(moments)
