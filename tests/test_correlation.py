@@ -151,13 +151,20 @@ def test_undefined_cases_give_none_with_reason_never_nan():
     assert three.r == pytest.approx(0.5) and three.ci_low is None and "4 pairs" in three.reason
 
 
-def test_tables_match_scipy_pair_by_pair_in_every_scope():
+@pytest.mark.parametrize("chunk_rows", [2**21, 64])
+@pytest.mark.parametrize("missing", [True, False])
+def test_tables_match_scipy_pair_by_pair_in_every_scope(monkeypatch, chunk_rows, missing):
+    # chunk_rows=64: the matrix products run over blocks of rows, as on 10M-row tables.
+    from sitebuild.stats import correlation
+
+    monkeypatch.setattr(correlation, "CHUNK_ROWS", chunk_rows)
     rng = np.random.default_rng(21)
     n = 400
     data = rng.normal(size=(n, 4))
     data[:, 1] += data[:, 0]
     data[:, 3] = np.round(data[:, 3], 1)
-    data[rng.choice(n, 30, replace=False), 2] = np.nan  # pairs with their own complete rows
+    if missing:
+        data[rng.choice(n, 30, replace=False), 2] = np.nan  # pairs with their own complete rows
     codes = rng.integers(0, 3, size=n)
     tables = correlation_tables(data, codes, 3, rng=np.random.default_rng(0))
     assert len(tables) == 4 * 3

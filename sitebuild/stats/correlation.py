@@ -343,6 +343,9 @@ def kendall(
     )
 
 
+CHUNK_ROWS = 2**21  # rows centred at a time in _matrix_r (a 1M-row column is one block)
+
+
 def _matrix_r(data: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     """Return (r, n, flat) k x k over pairwise-complete rows by matrix products.
 
@@ -358,10 +361,17 @@ def _matrix_r(data: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
         zeros = np.zeros((k, k))
         return zeros, zeros.astype(np.int64), zeros.astype(bool)
     data = _unit_scale(data)
+    # Long columns are centred and multiplied a block of rows at a time, so the centred copy
+    # never holds more than CHUNK_ROWS rows (10M rows x 5 columns: 80 MB instead of 400 MB).
+    blocks = [slice(start, start + CHUNK_ROWS) for start in range(0, rows, CHUNK_ROWS)]
     if present.all():
         # No missing values: every pair uses all rows, one cross-product does it.
-        x0 = data - data.mean(axis=0)
-        cross = x0.T @ x0
+        mean = data.mean(axis=0)
+        cross = np.zeros((k, k))
+        for block in blocks:
+            x0 = data[block] - mean
+            cross += x0.T @ x0
+        del x0
         squares = np.repeat(np.diag(cross)[:, None], k, axis=1)
         var = squares.copy()
         with np.errstate(invalid="ignore", divide="ignore"):
@@ -370,15 +380,21 @@ def _matrix_r(data: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
         flat = var <= FLAT_TOLERANCE * np.maximum(squares, peak[:, None] ** 2)
         n = np.full((k, k), rows, dtype=np.int64)
         return np.clip(np.nan_to_num(r), -1.0, 1.0), n, flat
-    mask = present.astype(np.float64)
     counts = present.sum(axis=0)
     with np.errstate(invalid="ignore", divide="ignore"):
         centre = np.where(counts > 0, np.nansum(data, axis=0) / np.maximum(counts, 1), 0.0)
-    x0 = np.where(present, data - centre, 0.0)
-    n = mask.T @ mask
-    sums = x0.T @ mask  # sums[a, b]: sum of column a over rows where a and b are present
-    squares = (x0 * x0).T @ mask
-    cross = x0.T @ x0
+    n = np.zeros((k, k))
+    sums = np.zeros((k, k))
+    squares = np.zeros((k, k))
+    cross = np.zeros((k, k))
+    for block in blocks:
+        mask = present[block].astype(np.float64)
+        x0 = np.where(present[block], data[block] - centre, 0.0)
+        n += mask.T @ mask
+        sums += x0.T @ mask  # sums[a, b]: sum of column a over rows where a and b are present
+        squares += (x0 * x0).T @ mask
+        cross += x0.T @ x0
+    del mask, x0
     with np.errstate(invalid="ignore", divide="ignore"):
         nn = np.maximum(n, 1.0)
         var = squares - sums * sums / nn  # var[a, b]: a's sum of squares over the pair's rows
