@@ -116,8 +116,9 @@ class Table:
         """
         values = self.columns[name]
         keep = ~np.isnan(values)
-        order, bounds = group_order(self.codes[keep], len(self.groups))
-        sorted_values = values[keep][order]
+        whole = bool(keep.all())  # then no copies of the column and its codes
+        order, bounds = group_order(self.codes if whole else self.codes[keep], len(self.groups))
+        sorted_values = (values if whole else values[keep])[order]
         return [sorted_values[bounds[i] : bounds[i + 1]] for i in range(len(self.groups))]
 
 

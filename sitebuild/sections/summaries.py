@@ -34,8 +34,9 @@ def _sorted_by_group(values: np.ndarray, codes: np.ndarray, n_groups: int):
     the sorted runs for the all-groups row: cheaper than a lexsort plus a second full sort.
     """
     keep = ~np.isnan(values)
-    order, bounds = group_order(codes[keep], n_groups)
-    ordered = values[keep][order]
+    whole = bool(keep.all())  # then no copies of the column and its codes (10M rows: 160 MB)
+    order, bounds = group_order(codes if whole else codes[keep], n_groups)
+    ordered = (values if whole else values[keep])[order]
     for index in range(n_groups):
         ordered[bounds[index] : bounds[index + 1]].sort()
     # Timsort ("stable" for floats) merges already-sorted runs in O(n log groups).

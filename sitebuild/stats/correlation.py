@@ -180,35 +180,57 @@ def rank_average(values) -> np.ndarray:
     return _ranks_from_order(v, np.argsort(v))
 
 
+SCATTER_ROWS = 2**20  # rows written at a time when ranks are put back in row order
+
+
 def _ranks_from_order(
-    v: np.ndarray, order: np.ndarray, block_key: np.ndarray | None = None
+    v: np.ndarray,
+    order: np.ndarray,
+    block_key: np.ndarray | None = None,
+    out: np.ndarray | None = None,
 ) -> np.ndarray:
     """Average ranks along ``order``; with ``block_key`` (sorted along ``order``) ranks restart
-    at 1 in each block."""
+    at 1 in each block. Written into ``out`` when given (float64, the size of ``v``).
+
+    Each temporary is let go as soon as it is used, and the ranks go back to row order a
+    block of rows at a time: at 10M rows every full-size temporary is 80 MB.
+    """
     n = v.size
-    out = np.empty(n, dtype=np.float64)
+    if out is None:
+        out = np.empty(n, dtype=np.float64)
     if n == 0:
         return out
     s = v[order]
     new_tie = np.empty(n, dtype=bool)
     new_tie[0] = True
     np.not_equal(s[1:], s[:-1], out=new_tie[1:])
+    del s
     if block_key is not None:
         key = block_key[order]
         new_block = np.empty(n, dtype=bool)
         new_block[0] = True
         np.not_equal(key[1:], key[:-1], out=new_block[1:])
+        del key
         new_tie |= new_block
     tie_start = np.flatnonzero(new_tie)
-    tie_end = np.append(tie_start[1:], n)
-    average = (tie_start + tie_end + 1) / 2.0
+    # (start + end + 1) / 2 of each run of ties, 1-based; every term is an exact integer.
+    average = np.empty(tie_start.size, dtype=np.float64)
+    np.add(tie_start[:-1], tie_start[1:], out=average[:-1])
+    average[-1] = tie_start[-1] + n
+    average += 1
+    average /= 2.0
     if block_key is not None:
         block_start = np.flatnonzero(new_block)
         block_of_tie = np.searchsorted(block_start, tie_start, side="right") - 1
         average -= block_start[block_of_tie]
+        del block_start, block_of_tie
+    del tie_start
     tie_id = np.cumsum(new_tie, dtype=np.int64)
+    del new_tie
     tie_id -= 1
-    out[order] = average[tie_id]
+    for start in range(0, n, SCATTER_ROWS):
+        part = slice(start, start + SCATTER_ROWS)
+        out[order[part]] = average[tie_id[part]]
     return out
 
 
@@ -592,20 +614,32 @@ def _grouped_ranks(data: np.ndarray, bounds: np.ndarray) -> tuple[np.ndarray, np
         values = column if whole else column[rows]
         cut = bounds if whole else np.searchsorted(rows, bounds)  # group bounds among kept rows
         order = np.empty(values.size, dtype=np.int64)
-        ranks = np.empty(values.size)
+        ranks = None if whole else np.empty(values.size)
         for g in range(cut.size - 1):
             # One group at a time: its gathers and scatters stay within its own rows.
             part = slice(cut[g], cut[g + 1])
             if cut[g + 1] > cut[g]:
                 local = np.argsort(values[part])
-                ranks[part] = _ranks_from_order(values[part], local)
+                mine = _ranks_from_order(values[part], local)
+                if whole:
+                    within[part, j] = mine
+                else:
+                    ranks[part] = mine
+                del mine
                 local += cut[g]
                 order[part] = local
-        within[rows, j] = ranks
-        del ranks
-        merged = order[np.argsort(values[order], kind="stable")]
+        if not whole:
+            within[rows, j] = ranks
+            del ranks
+        along = values[order]
+        merged = np.argsort(along, kind="stable")
+        del along
+        np.take(order, merged, out=merged)  # the merge's positions, in place
         del order
-        pooled[rows, j] = _ranks_from_order(values, merged)
+        if whole:
+            _ranks_from_order(values, merged, out=pooled[:, j])
+        else:
+            pooled[rows, j] = _ranks_from_order(values, merged)
     return pooled, within
 
 

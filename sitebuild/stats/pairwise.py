@@ -156,12 +156,19 @@ def _pooled_ranks(samples: Sequence[Sample]) -> tuple[np.ndarray, np.ndarray, np
     del ordered
     starts = np.flatnonzero(new_value)
     runs = np.diff(np.append(starts, size))
-    code_sorted = np.cumsum(new_value, dtype=np.int64) - 1
+    index_type = np.int32 if size < 2**31 else np.int64  # half the memory of int64
+    code_sorted = np.cumsum(new_value, dtype=index_type)
     del new_value
-    codes = np.empty(size, dtype=np.int64)
-    codes[order] = code_sorted
+    code_sorted -= 1
+    per_value = (2 * starts + runs + 1) / 2.0
+    del starts
     ranks = np.empty(size, dtype=np.float64)
-    ranks[order] = ((2 * starts + runs + 1) / 2.0)[code_sorted]
+    for start in range(0, size, 2**20):  # a block at a time: no full-size gathered copy
+        part = slice(start, start + 2**20)
+        ranks[order[part]] = per_value[code_sorted[part]]
+    del per_value
+    codes = np.empty(size, dtype=index_type)
+    codes[order] = code_sorted
     return ranks, codes, runs
 
 
