@@ -17,6 +17,8 @@ from dataclasses import dataclass, replace
 
 import numpy as np
 
+from .ordering import sorting_order
+
 METHODS = ("pearson", "spearman", "kendall")
 MIN_PAIRS = 3
 # Kendall's tau-b costs O(n log n) per pair with a large constant; above this many complete
@@ -177,7 +179,8 @@ def rank_average(values) -> np.ndarray:
     [2.5, 1.0, 2.5]
     """
     v = np.asarray(values, dtype=np.float64)
-    return _ranks_from_order(v, np.argsort(v))
+    order, ordered = sorting_order(v)
+    return _ranks_from_order(v, order, ordered=ordered)
 
 
 SCATTER_ROWS = 2**20  # rows written at a time when ranks are put back in row order
@@ -188,9 +191,11 @@ def _ranks_from_order(
     order: np.ndarray,
     block_key: np.ndarray | None = None,
     out: np.ndarray | None = None,
+    ordered: np.ndarray | None = None,
 ) -> np.ndarray:
     """Average ranks along ``order``; with ``block_key`` (sorted along ``order``) ranks restart
-    at 1 in each block. Written into ``out`` when given (float64, the size of ``v``).
+    at 1 in each block. Written into ``out`` when given (float64, the size of ``v``);
+    ``ordered`` is ``v[order]`` when the caller has it.
 
     Each temporary is let go as soon as it is used, and the ranks go back to row order a
     block of rows at a time: at 10M rows every full-size temporary is 80 MB.
@@ -200,7 +205,7 @@ def _ranks_from_order(
         out = np.empty(n, dtype=np.float64)
     if n == 0:
         return out
-    s = v[order]
+    s = v[order] if ordered is None else ordered
     new_tie = np.empty(n, dtype=bool)
     new_tie[0] = True
     np.not_equal(s[1:], s[:-1], out=new_tie[1:])
@@ -619,8 +624,9 @@ def _grouped_ranks(data: np.ndarray, bounds: np.ndarray) -> tuple[np.ndarray, np
             # One group at a time: its gathers and scatters stay within its own rows.
             part = slice(cut[g], cut[g + 1])
             if cut[g + 1] > cut[g]:
-                local = np.argsort(values[part])
-                mine = _ranks_from_order(values[part], local)
+                local, ordered = sorting_order(values[part])
+                mine = _ranks_from_order(values[part], local, ordered=ordered)
+                del ordered
                 if whole:
                     within[part, j] = mine
                 else:
@@ -653,7 +659,8 @@ def _column_ranks(data: np.ndarray) -> np.ndarray:
         whole = not missing.any()  # then skip the gathers and scatters by row number
         rows = slice(None) if whole else np.flatnonzero(~missing)
         values = column if whole else column[rows]
-        ranks[rows, j] = _ranks_from_order(values, np.argsort(values))
+        order, ordered = sorting_order(values)
+        ranks[rows, j] = _ranks_from_order(values, order, ordered=ordered)
     return ranks
 
 

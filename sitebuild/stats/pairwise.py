@@ -771,9 +771,9 @@ def cliffs_delta(
     np.square(row, out=row)
     col -= delta
     np.square(col, out=col)
-    s2 = (
-        n**2 * float(np.sum(row)) + m**2 * float(np.sum(col)) - (nonzero - mn * delta**2)
-    ) / (mn * (m - 1) * (n - 1))
+    s2 = (n**2 * float(np.sum(row)) + m**2 * float(np.sum(col)) - (nonzero - mn * delta**2)) / (
+        mn * (m - 1) * (n - 1)
+    )
     s2 = max(s2, (1 - delta**2) / (mn - 1))
     s = math.sqrt(s2)
     z = norm_ppf(0.5 + confidence / 2)
