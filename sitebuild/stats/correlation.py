@@ -619,14 +619,14 @@ def _grouped_ranks(data: np.ndarray, bounds: np.ndarray) -> tuple[np.ndarray, np
         values = column if whole else column[rows]
         cut = bounds if whole else np.searchsorted(rows, bounds)  # group bounds among kept rows
         order = np.empty(values.size, dtype=np.int64)
+        along = np.empty(values.size)  # each group's values in order, group after group
         ranks = None if whole else np.empty(values.size)
         for g in range(cut.size - 1):
             # One group at a time: its gathers and scatters stay within its own rows.
             part = slice(cut[g], cut[g + 1])
             if cut[g + 1] > cut[g]:
-                local, ordered = sorting_order(values[part])
-                mine = _ranks_from_order(values[part], local, ordered=ordered)
-                del ordered
+                local, along[part] = sorting_order(values[part])
+                mine = _ranks_from_order(values[part], local, ordered=along[part])
                 if whole:
                     within[part, j] = mine
                 else:
@@ -637,15 +637,15 @@ def _grouped_ranks(data: np.ndarray, bounds: np.ndarray) -> tuple[np.ndarray, np
         if not whole:
             within[rows, j] = ranks
             del ranks
-        along = values[order]
         merged = np.argsort(along, kind="stable")
-        del along
         np.take(order, merged, out=merged)  # the merge's positions, in place
         del order
+        along.sort(kind="stable")  # the sorted runs merged: the values in that order
         if whole:
-            _ranks_from_order(values, merged, out=pooled[:, j])
+            _ranks_from_order(values, merged, out=pooled[:, j], ordered=along)
         else:
-            pooled[rows, j] = _ranks_from_order(values, merged)
+            pooled[rows, j] = _ranks_from_order(values, merged, ordered=along)
+        del along, merged
     return pooled, within
 
 

@@ -19,19 +19,6 @@ SMALL = 4096  # below this many values argsort is as fast
 SIGN = np.uint64(1 << 63)
 
 
-_POSITIONS: dict[int, np.ndarray] = {}
-
-
-def _positions(n: int) -> np.ndarray:
-    """0, 1, ..., n − 1 as uint64, kept for the last few sizes (each column of a table asks)."""
-    kept = _POSITIONS.get(n)
-    if kept is None:
-        if len(_POSITIONS) > 8:
-            _POSITIONS.clear()
-        kept = _POSITIONS[n] = np.arange(n, dtype=np.uint64)
-    return kept
-
-
 def _keys(v: np.ndarray) -> np.ndarray:
     """Unsigned keys in the order of the doubles ``v``: negative ones have every bit flipped,
     the others their sign bit set."""
@@ -61,7 +48,7 @@ def sorting_order(values: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     low = np.uint64((1 << index_bits) - 1)
     keys = _keys(v)
     keys &= ~low
-    keys |= _positions(n)
+    keys |= np.arange(n, dtype=np.uint64)
     keys.sort()
     keys &= low
     order = keys.view(np.int64)
