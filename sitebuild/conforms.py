@@ -48,6 +48,16 @@ def conforms(value, definition: str | None = None) -> bool:
 
 _NOTES = frozenset({"description", "title", "$comment", "examples", "default"})
 _SIMPLE: dict[int, tuple] = {}  # id of a schema node -> its type checks, () if not simple
+# The exact Python types json.loads gives for each JSON type (bool is not a number here).
+_EXACT = {
+    "object": (dict,),
+    "array": (list,),
+    "string": (str,),
+    "boolean": (bool,),
+    "null": (type(None),),
+    "integer": (int,),
+    "number": (int, float),
+}
 
 
 def _simple(node: dict) -> tuple:
@@ -61,8 +71,21 @@ def _simple(node: dict) -> tuple:
         if set(node) - _NOTES == {"type"}:
             kinds = node["type"]
             found = tuple(_TYPES[k] for k in ([kinds] if isinstance(kinds, str) else kinds))
+            exact = frozenset(
+                t for k in ([kinds] if isinstance(kinds, str) else kinds) for t in _EXACT[k]
+            )
+            found = (exact, *found)
         _SIMPLE[id(node)] = found
     return found
+
+
+def _leaf(value, simple: tuple) -> bool:
+    """Whether ``value`` has one of a simple node's types (and is finite if a float)."""
+    if type(value) in simple[0]:  # the usual case: a value as json.loads made it
+        return type(value) is not float or math.isfinite(value)
+    if not any(check(value) for check in simple[1:]):
+        return False
+    return not (isinstance(value, float) and not math.isfinite(value))
 
 
 def _fits(value, node: dict, root: dict, depth: int) -> bool:
@@ -70,9 +93,7 @@ def _fits(value, node: dict, root: dict, depth: int) -> bool:
         return False
     simple = _simple(node)
     if simple:  # a leaf: its type, and a finite number (the checks below, taken short)
-        if not any(check(value) for check in simple):
-            return False
-        return not (isinstance(value, float) and not math.isfinite(value))
+        return _leaf(value, simple)
     if "$ref" in node:
         target = root
         for part in node["$ref"].removeprefix("#/").split("/"):
@@ -105,12 +126,21 @@ def _fits(value, node: dict, root: dict, depth: int) -> bool:
         extra = node.get("additionalProperties", True)
         for k, v in value.items():
             if k in properties:
-                if not _fits(v, properties[k], root, depth + 1):
+                prop = properties[k]
+                simple = _simple(prop) if depth < 64 else ()
+                if simple:  # a leaf, checked here (most of a results tree)
+                    if not _leaf(v, simple):
+                        return False
+                elif not _fits(v, prop, root, depth + 1):
                     return False
             elif extra is False:
                 return False
             elif isinstance(extra, dict) and not _fits(v, extra, root, depth + 1):
                 return False
     if isinstance(value, list) and isinstance(node.get("items"), dict):
-        return all(_fits(v, node["items"], root, depth + 1) for v in value)
+        items = node["items"]
+        simple = _simple(items)
+        if simple and depth < 64:
+            return all(_leaf(v, simple) for v in value)
+        return all(_fits(v, items, root, depth + 1) for v in value)
     return True
