@@ -2,9 +2,9 @@
 
 The analysis has parallel work at two levels: whole sections (comparisons beside the
 correlations and smooths), and, inside them, the measures of one section. With a thread
-pool at each level a 2-core machine ran five busy threads at once; they slowed each other
-(measured on the 1M-row benchmark: 7.0 s of CPU for work that takes 5.6 s with the threads
-kept to the cores), and each held its large arrays at the same time.
+pool at each level a 2-core machine ran up to five busy threads at once, each holding its
+large arrays, while a section that had finished left its core idle until the slowest one
+ended.
 
 :func:`share` runs a list of jobs with one rule for the whole process: at most
 :func:`cores` threads compute at once. The calling thread always works on its own jobs; a
