@@ -70,11 +70,9 @@ def _simple(node: dict) -> tuple:
         found = ()
         if set(node) - _NOTES == {"type"}:
             kinds = node["type"]
-            found = tuple(_TYPES[k] for k in ([kinds] if isinstance(kinds, str) else kinds))
-            exact = frozenset(
-                t for k in ([kinds] if isinstance(kinds, str) else kinds) for t in _EXACT[k]
-            )
-            found = (exact, *found)
+            kinds = [kinds] if isinstance(kinds, str) else kinds
+            exact = frozenset(t for k in kinds for t in _EXACT[k])
+            found = (exact, *(_TYPES[k] for k in kinds))
         _SIMPLE[id(node)] = found
     return found
 

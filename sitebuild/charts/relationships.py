@@ -12,7 +12,7 @@ from .theme import (
     MARKER_STROKE,
     MUTED,
     channel,
-    dimmed_unless_picked,
+    focus_opacity,
     group_encoding,
     themed,
     tip,
@@ -204,7 +204,7 @@ def scatter_with_smooths(
                 "x": x,
                 "y": channel("y", title=y_title, scale={"zero": False}),
                 "color": colour,
-                "opacity": dimmed_unless_picked(full=0.8),
+                "opacity": focus_opacity(full=0.8),
                 "tooltip": [
                     tip("group", "nominal", group_by or "Group"),
                     tip("x_value" if jitter else "x", "quantitative", scatter["x"]),
@@ -225,7 +225,7 @@ def scatter_with_smooths(
         layers.append(
             view(
                 "area",
-                {"x": x, "color": colour, "opacity": dimmed_unless_picked(full=0.12), **band},
+                {"x": x, "color": colour, "opacity": focus_opacity(full=0.12), **band},
                 data={"name": "curves"},
                 where=has_band,
             )
@@ -239,7 +239,7 @@ def scatter_with_smooths(
                     "y": fit,
                     "color": colour,
                     "detail": channel("group", "nominal"),
-                    "opacity": dimmed_unless_picked(),
+                    "opacity": focus_opacity(),
                 },
                 data={"name": "curves"},
                 strokeWidth=2.2,

@@ -383,12 +383,6 @@ def edge_arrows(arrows: list[dict], encoding: dict, colour: str = INK) -> list:
     return layers
 
 
-def dimmed_unless_picked(few: bool = False, full: float = 1.0) -> dict:
-    """Return an opacity channel: ``full`` for the picked group (or when none is picked),
-    faint for the others; with ``few``, rows flagged ``few`` at :data:`FEW_OPACITY`."""
-    return focus_opacity(few, full)
-
-
 def dashed_when_few() -> dict:
     """Return a stroke-dash channel: dashed for rows flagged ``few``, solid otherwise."""
     return {"condition": {"test": "datum.few", "value": [3, 3]}, "value": [1, 0]}
@@ -426,9 +420,7 @@ def to_spec(chart: dict, datasets: dict | None = None, focus: bool = False) -> d
     """Return a layered chart as a themed Vega-Lite dict (see :func:`themed`), with
     ``datasets`` (name -> records) as its named data and, with ``focus``, the page-wide
     ``focus`` parameter (the highlighted group's label, or null) at its top level."""
-    spec = dict(chart)
-    if focus:
-        spec["params"] = [*spec.get("params", []), {"name": FOCUS, "value": None}]
+    spec = with_focus(chart) if focus else dict(chart)
     if datasets:
         spec["datasets"] = {**spec.get("datasets", {}), **datasets}
     out = themed(spec)

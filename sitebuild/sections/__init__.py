@@ -17,6 +17,8 @@ from __future__ import annotations
 import importlib
 from dataclasses import dataclass
 
+from ..cores import share
+
 SECTION_NAMES = ("summaries", "relationships", "comparisons", "adjusted", "capability", "trend")
 # Sections that read other sections' results (curve flags, the x-balance check): the pipeline
 # runs them after all the others, with every earlier key in ``partial``.
@@ -35,8 +37,6 @@ def map_measures(work, items, n_rows: int) -> list:
     :data:`PARALLEL_ROWS` rows the items are shared with any free core (see
     :mod:`sitebuild.cores`). For work that draws no shared random numbers, so the results are
     the same in any order."""
-    from ..cores import share
-
     return share(work, items, parallel=n_rows >= PARALLEL_ROWS)
 
 

@@ -17,7 +17,7 @@ from dataclasses import dataclass, replace
 
 import numpy as np
 
-from .ordering import sorting_order
+from .ordering import put_back, sorting_order
 
 METHODS = ("pearson", "spearman", "kendall")
 MIN_PAIRS = 3
@@ -183,18 +183,13 @@ def rank_average(values) -> np.ndarray:
     return _ranks_from_order(v, order, ordered=ordered)
 
 
-SCATTER_ROWS = 2**20  # rows written at a time when ranks are put back in row order
-
-
 def _ranks_from_order(
     v: np.ndarray,
     order: np.ndarray,
-    block_key: np.ndarray | None = None,
     out: np.ndarray | None = None,
     ordered: np.ndarray | None = None,
 ) -> np.ndarray:
-    """Average ranks along ``order``; with ``block_key`` (sorted along ``order``) ranks restart
-    at 1 in each block. Written into ``out`` when given (float64, the size of ``v``);
+    """Average ranks along ``order``. Written into ``out`` when given (float64, the size of ``v``);
     ``ordered`` is ``v[order]`` when the caller has it.
 
     Each temporary is let go as soon as it is used, and the ranks go back to row order a
@@ -210,13 +205,6 @@ def _ranks_from_order(
     new_tie[0] = True
     np.not_equal(s[1:], s[:-1], out=new_tie[1:])
     del s
-    if block_key is not None:
-        key = block_key[order]
-        new_block = np.empty(n, dtype=bool)
-        new_block[0] = True
-        np.not_equal(key[1:], key[:-1], out=new_block[1:])
-        del key
-        new_tie |= new_block
     tie_start = np.flatnonzero(new_tie)
     # (start + end + 1) / 2 of each run of ties, 1-based; every term is an exact integer.
     average = np.empty(tie_start.size, dtype=np.float64)
@@ -224,18 +212,11 @@ def _ranks_from_order(
     average[-1] = tie_start[-1] + n
     average += 1
     average /= 2.0
-    if block_key is not None:
-        block_start = np.flatnonzero(new_block)
-        block_of_tie = np.searchsorted(block_start, tie_start, side="right") - 1
-        average -= block_start[block_of_tie]
-        del block_start, block_of_tie
     del tie_start
     tie_id = np.cumsum(new_tie, dtype=np.int64)
     del new_tie
     tie_id -= 1
-    for start in range(0, n, SCATTER_ROWS):
-        part = slice(start, start + SCATTER_ROWS)
-        out[order[part]] = average[tie_id[part]]
+    put_back(out, order, average, tie_id)
     return out
 
 
@@ -620,23 +601,16 @@ def _grouped_ranks(data: np.ndarray, bounds: np.ndarray) -> tuple[np.ndarray, np
         cut = bounds if whole else np.searchsorted(rows, bounds)  # group bounds among kept rows
         order = np.empty(values.size, dtype=np.int64)
         along = np.empty(values.size)  # each group's values in order, group after group
-        ranks = None if whole else np.empty(values.size)
         for g in range(cut.size - 1):
             # One group at a time: its gathers and scatters stay within its own rows.
             part = slice(cut[g], cut[g + 1])
             if cut[g + 1] > cut[g]:
                 local, along[part] = sorting_order(values[part])
-                mine = _ranks_from_order(values[part], local, ordered=along[part])
-                if whole:
-                    within[part, j] = mine
-                else:
-                    ranks[part] = mine
-                del mine
+                within[part if whole else rows[part], j] = _ranks_from_order(
+                    values[part], local, ordered=along[part]
+                )
                 local += cut[g]
                 order[part] = local
-        if not whole:
-            within[rows, j] = ranks
-            del ranks
         merged = np.argsort(along, kind="stable")
         np.take(order, merged, out=merged)  # the merge's positions, in place
         del order

@@ -18,6 +18,7 @@ from scipy import stats
 
 from .distributions import norm_ppf, norm_sf, t_cdf, t_ppf, t_sf
 from .omnibus import group_moments
+from .ordering import put_back
 
 # Mann–Whitney's exact null distribution is used when there are no ties and both groups have
 # at most this many values; the dynamic programme costs about m·n·(m·n/2) operations.
@@ -163,9 +164,7 @@ def _pooled_ranks(samples: Sequence[Sample]) -> tuple[np.ndarray, np.ndarray, np
     per_value = (2 * starts + runs + 1) / 2.0
     del starts
     ranks = np.empty(size, dtype=np.float64)
-    for start in range(0, size, 2**20):  # a block at a time: no full-size gathered copy
-        part = slice(start, start + 2**20)
-        ranks[order[part]] = per_value[code_sorted[part]]
+    put_back(ranks, order, per_value, code_sorted)
     del per_value
     codes = np.empty(size, dtype=index_type)
     codes[order] = code_sorted
