@@ -18,6 +18,7 @@ Pairwise p-values are adjusted within the measure's family by the site's ``adjus
 from __future__ import annotations
 
 import math
+from dataclasses import dataclass
 
 import numpy as np
 
@@ -43,22 +44,44 @@ def _num(value) -> float | None:
 
 
 def _moments_memory(
-    table, x: str, measure: str, degree: int, rows: tuple[np.ndarray, np.ndarray] | None = None
+    table, x: str, measure: str, degree: int, rows: GroupRows | None = None
 ) -> tuple[list[XYMoments], tuple]:
-    xs, ys = table.values(x), table.values(measure)
-    both = ~(np.isnan(xs) | np.isnan(ys))
-    centre = float(np.mean(xs[both])) if both.any() else 0.0
-    del both
-    order, bounds = rows if rows is not None else group_order(table.codes, len(table.groups))
-    xs, ys = xs[order], ys[order]  # (XYMoments.of leaves out the rows with a NaN)
+    rows = rows if rows is not None else GroupRows.of(table, x)
+    ys = table.values(measure)
+    if rows.x_complete and not np.isnan(ys).any():
+        centre = rows.x_mean
+    else:
+        both = ~(np.isnan(table.values(x)) | np.isnan(ys))
+        centre = float(np.mean(table.values(x)[both])) if both.any() else 0.0
+        del both
+    ys = ys[rows.order]  # (XYMoments.of leaves out the rows with a NaN)
     groups = []
     for code in range(len(table.groups)):
-        part = slice(bounds[code], bounds[code + 1])
-        groups.append(XYMoments.of(xs[part], ys[part], degree, centre))
+        part = slice(rows.bounds[code], rows.bounds[code + 1])
+        groups.append(XYMoments.of(rows.x[part], ys[part], degree, centre))
     # Means are evaluated at the overall means of the covariates: for the curve, averaged over
     # the x values of all rows together (not at the curve's value at x̄, which would sit at
     # its peak or trough and move every mean away from the data).
     return groups, None
+
+
+@dataclass(frozen=True)
+class GroupRows:
+    """The rows in group order (each group's in their original order), and x in that order:
+    made once and shared by every measure."""
+
+    order: np.ndarray
+    bounds: np.ndarray
+    x: np.ndarray
+    x_complete: bool
+    x_mean: float  # over every row, when x is complete
+
+    @classmethod
+    def of(cls, table, x: str) -> GroupRows:
+        order, bounds = group_order(table.codes, len(table.groups))
+        xs = table.values(x)
+        complete = not np.isnan(xs).any()
+        return cls(order, bounds, xs[order], complete, float(np.mean(xs)) if complete else 0.0)
 
 
 def _moments_streamed(table, x: str, measure: str) -> list[XYMoments]:
@@ -102,8 +125,11 @@ def _too_large(table, x: str, measure: str) -> bool:
         )
     for column in (x, measure):
         values = table.values(column)
-        values = values[~np.isnan(values)]
-        if values.size and float(np.max(np.abs(values))) > SCALE_LIMIT:
+        if not values.size:
+            continue
+        # fmin and fmax pass over NaN, with no copy (an all-NaN column gives NaN: not large).
+        low, high = float(np.fmin.reduce(values)), float(np.fmax.reduce(values))
+        if abs(low) > SCALE_LIMIT or abs(high) > SCALE_LIMIT:
             return True
     return False
 
@@ -320,7 +346,7 @@ def compute(table, settings, rng: np.random.Generator, partial: dict | None = No
     if not x or x in table.spec.measures:
         return {}
     balance = _x_balance(partial, table, settings)
-    rows = group_order(table.codes, len(table.groups)) if table.exact is None else None
+    rows = GroupRows.of(table, x) if table.exact is None else None
 
     def entry(measure: str) -> dict:
         return _entry(table, measure, settings, partial or {}, balance, rows)
