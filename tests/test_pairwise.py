@@ -303,9 +303,16 @@ def test_shared_ranks_match_scipy_ranks_and_brute_force_dominance_and_ties():
     for i in range(4):
         for j in range(4):
             x, y = samples[i].sorted, samples[j].sorted
-            below, at_or_below = shared.dominance(i, j)
+            dom = shared.dominance(i, j)
+            below, at_or_below = dom.per_value()
             assert below.tolist() == [int(np.sum(y < v)) for v in x]
             assert at_or_below.tolist() == [int(np.sum(y <= v)) for v in x]
+            x_below, x_upto = pw.Dominance(dom.y_count, dom.x_below, dom.x_upto).per_value()
+            assert x_below.tolist() == [int(np.sum(x < v)) for v in y]
+            assert x_upto.tolist() == [int(np.sum(x <= v)) for v in y]
+            searched = pw.dominance_counts(samples[i], samples[j])
+            for field in ("x_count", "y_below", "y_upto", "y_count", "x_below", "x_upto"):
+                assert np.array_equal(getattr(searched, field), getattr(dom, field)), field
             if i != j:
                 _, t = np.unique(np.concatenate([x, y]), return_counts=True)
                 assert shared.tie_term(i, j) == float(np.sum(t.astype(float) ** 3 - t))

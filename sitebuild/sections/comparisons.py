@@ -53,10 +53,12 @@ from ..stats.omnibus import (
 )
 from ..stats.pairwise import (
     EXACT_MAX_N,
+    Dominance,
     Sample,
     SharedRanks,
     cliffs_delta,
     detectable_difference,
+    distinct_values,
     dominance_counts,
     dunnett,
     games_howell,
@@ -419,7 +421,7 @@ def _pair_record(
     rng: np.random.Generator,
     perm: tuple[int, np.random.Generator] | None,
     summary_mode: bool,
-    dominance: tuple[np.ndarray, np.ndarray] | None = None,
+    dominance: Dominance | None = None,
     rest=None,
     moments: tuple[Sample, Sample] | None = None,
 ) -> dict:
@@ -745,11 +747,13 @@ def _measure_entry(
             rest_s = _rest_sample(i, *rank_totals)
             rest_m = rest_s if moments is samples else _rest_sample(i, *moment_totals)
             own = samples[i].sorted
-            dom = (
-                np.searchsorted(everything, own, side="left")
-                - np.searchsorted(own, own, side="left"),
-                np.searchsorted(everything, own, side="right")
-                - np.searchsorted(own, own, side="right"),
+            values, count = distinct_values(own)
+            dom = Dominance(  # the group against the rest: only U is needed here
+                count,
+                np.searchsorted(everything, values, side="left")
+                - np.searchsorted(own, values, side="left"),
+                np.searchsorted(everything, values, side="right")
+                - np.searchsorted(own, values, side="right"),
             )
             records.append(
                 _pair_record(

@@ -130,11 +130,70 @@ class MannWhitneyResult:
     tie_term: float  # Σ (t³ − t) over tie groups of the pooled sample
 
 
-def dominance_counts(xs: Sample, ys: Sample) -> tuple[np.ndarray, np.ndarray]:
-    """Return, for each sorted x_i, the number of y below it and the number at or below it."""
-    below = np.searchsorted(ys.sorted, xs.sorted, side="left")
-    at_or_below = np.searchsorted(ys.sorted, xs.sorted, side="right")
-    return below, at_or_below
+@dataclass(frozen=True, eq=False)
+class Dominance:
+    """How the values of two groups x and y lie against each other, per distinct value.
+
+    For each distinct value of x (``x_count`` of x's values are equal to it): how many values
+    of y lie below it (``y_below``) and at or below it (``y_upto``); and the same for each
+    distinct value of y against x. Every rank statistic of the pair is a weighted sum over
+    these, so ties make the work shorter: a measure recorded to 0.01 mm has a few thousand
+    distinct values however many rows it has. The y side may be left out (``None``) when only
+    the x side is needed (Mann–Whitney's U).
+    """
+
+    x_count: np.ndarray  # int64, per distinct x value, ascending
+    y_below: np.ndarray
+    y_upto: np.ndarray
+    y_count: np.ndarray | None = None
+    x_below: np.ndarray | None = None
+    x_upto: np.ndarray | None = None
+
+    @property
+    def ties_between(self) -> bool:
+        """True when some value occurs in both groups."""
+        return bool(np.any(self.y_upto > self.y_below))
+
+    def per_value(self) -> tuple[np.ndarray, np.ndarray]:
+        """Return (#{y < x_i}, #{y ≤ x_i}) for each sorted x_i (the counts repeated)."""
+        return np.repeat(self.y_below, self.x_count), np.repeat(self.y_upto, self.x_count)
+
+
+def distinct_values(ordered: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Return (the distinct values, how many times each occurs) of a sorted array.
+
+    Examples
+    --------
+    >>> values, counts = distinct_values(np.array([1.0, 1.0, 2.0, 5.0, 5.0, 5.0]))
+    >>> values.tolist(), counts.tolist()
+    ([1.0, 2.0, 5.0], [2, 1, 3])
+    """
+    if ordered.size == 0:
+        return ordered, np.zeros(0, dtype=np.int64)
+    starts = np.flatnonzero(np.concatenate(([True], ordered[1:] != ordered[:-1])))
+    return ordered[starts], np.diff(np.append(starts, ordered.size))
+
+
+def dominance_counts(xs: Sample, ys: Sample) -> Dominance:
+    """Return the :class:`Dominance` of two sorted samples, by searching each one's distinct
+    values in the other.
+
+    Examples
+    --------
+    >>> dom = dominance_counts(Sample.of(np.array([1.0, 2, 2])), Sample.of(np.array([2.0, 5])))
+    >>> dom.x_count.tolist(), dom.y_below.tolist(), dom.y_upto.tolist()
+    ([1, 2], [0, 0], [0, 1])
+    """
+    x_values, x_count = distinct_values(xs.sorted)
+    y_values, y_count = distinct_values(ys.sorted)
+    return Dominance(
+        x_count,
+        np.searchsorted(ys.sorted, x_values, side="left"),
+        np.searchsorted(ys.sorted, x_values, side="right"),
+        y_count,
+        np.searchsorted(xs.sorted, y_values, side="left"),
+        np.searchsorted(xs.sorted, y_values, side="right"),
+    )
 
 
 def _pooled_ranks(samples: Sequence[Sample]) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
@@ -195,7 +254,8 @@ class SharedRanks:
     """
 
     ranks: list[np.ndarray]  # per group: mid-ranks of its sorted values in the pooled sample
-    codes: list[np.ndarray]  # per group: index of each value among the distinct pooled values
+    codes: list[np.ndarray]  # per group: its distinct values' indexes among the pooled ones
+    counts: list[np.ndarray]  # per group: how many of its values take each of those
     cumulative: list[np.ndarray]  # per group g: [c] = #{values of g with code < c}, c = 0..U
     tied: list[np.ndarray]  # per group: its count of each value tied in the pooled sample
     runs: np.ndarray  # size of each run of equal values in the pooled sample, by value
@@ -213,8 +273,8 @@ class SharedRanks:
         Examples
         --------
         >>> shared = SharedRanks.of([Sample.of(np.array([1., 2, 2])), Sample.of(np.array([2., 5]))])
-        >>> shared.ranks[1].tolist(), shared.dominance(0, 1)[0].tolist()
-        ([3.0, 5.0], [0, 0, 0])
+        >>> shared.ranks[1].tolist(), shared.dominance(0, 1).y_below.tolist()
+        ([3.0, 5.0], [0, 0])
         """
         size = sum(s.n for s in samples)
         bounds = np.cumsum([0] + [s.n for s in samples])
@@ -222,24 +282,34 @@ class SharedRanks:
         distinct = runs.size
         tied_codes = np.flatnonzero(runs > 1)
         count_type = np.int32 if size < 2**31 else np.int64
-        group_codes, cumulative, tied = [], [], []
+        distinct_codes, distinct_counts, cumulative, tied = [], [], [], []
         for g in range(len(samples)):
-            own = codes[bounds[g] : bounds[g + 1]]
+            own = codes[bounds[g] : bounds[g + 1]]  # ascending: the group's values are sorted
             counts = np.bincount(own, minlength=distinct)
             total = np.zeros(distinct + 1, dtype=count_type)
             np.cumsum(counts, out=total[1:])
-            group_codes.append(own)
+            present, count = distinct_values(own)
+            distinct_codes.append(present)
+            distinct_counts.append(count)
             cumulative.append(total)
             tied.append(counts[tied_codes].astype(float))
+        del codes
         group_ranks = [ranks[bounds[g] : bounds[g + 1]] for g in range(len(samples))]
         peaks = tuple(float(t.max()) if t.size else 0.0 for t in tied)
-        return cls(group_ranks, group_codes, cumulative, tied, runs, peaks)
+        return cls(group_ranks, distinct_codes, distinct_counts, cumulative, tied, runs, peaks)
 
-    def dominance(self, i: int, j: int) -> tuple[np.ndarray, np.ndarray]:
-        """Return, for each sorted value of group i, the number of group j's values below it
-        and the number at or below it (as :func:`dominance_counts`)."""
-        own, other = self.codes[i], self.cumulative[j]
-        return other[own].astype(np.int64), other[own + 1].astype(np.int64)
+    def dominance(self, i: int, j: int) -> Dominance:
+        """Return the :class:`Dominance` of group i against group j, by lookups."""
+        x_codes, y_codes = self.codes[i], self.codes[j]
+        x_cum, y_cum = self.cumulative[i], self.cumulative[j]
+        return Dominance(
+            self.counts[i],
+            y_cum[x_codes].astype(np.int64),
+            y_cum[x_codes + 1].astype(np.int64),
+            self.counts[j],
+            x_cum[y_codes].astype(np.int64),
+            x_cum[y_codes + 1].astype(np.int64),
+        )
 
     def tie_term(self, i: int, j: int) -> float:
         """Return Σ(t³ − t) over the values tied in groups i and j pooled."""
@@ -306,8 +376,8 @@ def mann_whitney_u(
     """Return U of x, its two-sided p-value and the method used (exact or normal).
 
     ``tie_term`` (optional) is Σ(t³ − t) over tie groups of the pooled pair, when the caller
-    has it already; otherwise it is computed here. ``dominance`` (optional) is the pair
-    (#{y < x_i}, #{y ≤ x_i}) per sorted x_i, shared with :func:`cliffs_delta`.
+    has it already; otherwise it is computed here. ``dominance`` (optional) is the pair's
+    :class:`Dominance`, shared with :func:`cliffs_delta`.
 
     Notes
     -----
@@ -329,11 +399,13 @@ def mann_whitney_u(
     xs, ys = Sample.of(x), Sample.of(y)
     if xs.n < 1 or ys.n < 1:
         raise ValueError("each group needs at least one value")
-    below, at_or_below = dominance if dominance is not None else dominance_counts(xs, ys)
-    ties_between = bool(np.any(at_or_below > below))
-    u = float(np.sum(below) + 0.5 * np.sum(at_or_below - below))
+    dom = dominance if dominance is not None else dominance_counts(xs, ys)
+    # 2U = Σ_i (#{y < x_i} + #{y ≤ x_i}), an exact integer (below 2^63 for groups of up to
+    # about two billion values each).
+    twice = int(np.dot(dom.x_count, dom.y_below + dom.y_upto))
+    u = twice / 2
     if tie_term is None:
-        tie_term = _tie_term(xs, ys, ties_between)
+        tie_term = _tie_term(xs, ys, dom.ties_between)
     return _mwu_from_u(xs.n, ys.n, u, tie_term)
 
 
@@ -629,8 +701,7 @@ def hodges_lehmann(
     m, n = xs.n, ys.n
     mn = m * n
     if tie_term is None:
-        below, at_or_below = dominance_counts(xs, ys)
-        tie_term = _tie_term(xs, ys, bool(np.any(at_or_below > below)))
+        tie_term = _tie_term(xs, ys, dominance_counts(xs, ys).ties_between)
     k = _ci_rank(m, n, confidence, tie_term)
     method = "exact" if tie_term == 0 and max(m, n) <= EXACT_MAX_N else "normal approximation"
     mids = [(mn - 1) // 2, mn // 2]
@@ -737,26 +808,30 @@ def cliffs_delta(
     m, n = xs.n, ys.n
     if m < 2 or n < 2:
         return EffectInterval("Cliff's delta", None, None, None, confidence, "fewer than 2 values")
-    below, at_or_below = dominance if dominance is not None else dominance_counts(xs, ys)
-    # (Each line below makes at most one new array: at 10M rows a pair's are 10 MB each.)
-    signs = below + at_or_below
-    signs -= n
-    row = np.divide(signs, n)  # d_i· = (#{y < x_i} − #{y > x_i}) / n
-    del signs
-    # #{x < y_j} = #{i: #{y ≤ x_i} ≤ j} and #{x ≤ y_j} = #{i: #{y < x_i} ≤ j} (y sorted,
-    # 0-based j): counting the row counts gives the column counts without another search.
-    x_below = np.bincount(at_or_below, minlength=n + 1)
-    np.cumsum(x_below, out=x_below)
-    x_at_or_below = np.bincount(below, minlength=n + 1)
-    np.cumsum(x_at_or_below, out=x_at_or_below)
-    counts = np.add(x_at_or_below[:n], x_below[:n])
-    del x_below, x_at_or_below
-    np.subtract(m, counts, out=counts)
-    col = np.divide(counts, m)  # d_·j = (#{x > y_j} − #{x < y_j}) / m
-    del counts
-    delta = float(np.mean(row))
+    dom = dominance if dominance is not None else dominance_counts(xs, ys)
+    if dom.y_count is None:
+        raise ValueError("Cliff's delta needs both sides of the dominance counts")
     mn = m * n
-    nonzero = float(np.sum(below) + (n * m - np.sum(at_or_below)))  # Σ d_ij² (ties give 0)
+    # Exact integers: Σ_ij sign(x_i − y_j) and the number of pairs that are not tied.
+    row_signs = dom.y_below + dom.y_upto
+    row_signs -= n  # per distinct x: #{y < x} − #{y > x}
+    total = int(np.dot(dom.x_count, row_signs))
+    nonzero = float(mn - int(np.dot(dom.x_count, dom.y_upto - dom.y_below)))  # Σ d_ij²
+    delta = total / mn
+    col_signs = dom.x_below + dom.x_upto
+    np.subtract(m, col_signs, out=col_signs)  # per distinct y: #{x > y} − #{x < y}
+    # Σ_i (d_i· − δ)² and Σ_j (d_·j − δ)², each distinct value weighted by its count.
+    row = np.divide(row_signs, n)
+    del row_signs
+    row -= delta
+    np.square(row, out=row)
+    row_squares = float(np.dot(dom.x_count, row))
+    col = np.divide(col_signs, m)
+    del col_signs
+    col -= delta
+    np.square(col, out=col)
+    col_squares = float(np.dot(dom.y_count, col))
+    del row, col
     if abs(delta) >= 1.0:
         return EffectInterval(
             "Cliff's delta",
@@ -766,11 +841,7 @@ def cliffs_delta(
             confidence,
             "complete separation: every value of one group is above every value of the other",
         )
-    row -= delta
-    np.square(row, out=row)
-    col -= delta
-    np.square(col, out=col)
-    s2 = (n**2 * float(np.sum(row)) + m**2 * float(np.sum(col)) - (nonzero - mn * delta**2)) / (
+    s2 = (n**2 * row_squares + m**2 * col_squares - (nonzero - mn * delta**2)) / (
         mn * (m - 1) * (n - 1)
     )
     s2 = max(s2, (1 - delta**2) / (mn - 1))
@@ -1074,6 +1145,8 @@ __all__ = [
     "WelchTResult",
     "cliffs_delta",
     "detectable_difference",
+    "Dominance",
+    "distinct_values",
     "dominance_counts",
     "dunnett",
     "games_howell",
