@@ -81,7 +81,8 @@ class GroupRows:
         order, bounds = group_order(table.codes, len(table.groups))
         xs = table.values(x)
         complete = not np.isnan(xs).any()
-        return cls(order, bounds, xs[order], complete, float(np.mean(xs)) if complete else 0.0)
+        centre = float(np.mean(xs)) if complete and xs.size else 0.0
+        return cls(order, bounds, xs[order], complete, centre)
 
 
 def _moments_streamed(table, x: str, measure: str) -> list[XYMoments]:
