@@ -129,16 +129,23 @@ def _moments(bins: _Bins, y: np.ndarray, w: np.ndarray | None, degree: int) -> _
     mx = np.empty((size, 2 * degree + 1))
     my = np.empty((size, degree + 1))
     mx2 = np.empty((size, 2 * degree + 1))
-    power = np.ones_like(bins.offset) if w is None else w.copy()
+    # power = w · offset^k; unweighted, None stands for the ones of k = 0 (products with 1 are
+    # exact, so the sums are the same as with an array of ones).
+    power = None if w is None else w.copy()
     for k in range(2 * degree + 1):
-        mx[:, k] = np.bincount(bins.index, weights=power, minlength=size)
+        if power is None:
+            mx[:, k] = np.bincount(bins.index, minlength=size)
+        else:
+            mx[:, k] = np.bincount(bins.index, weights=power, minlength=size)
         if k <= degree:
-            my[:, k] = np.bincount(bins.index, weights=power * y, minlength=size)
+            my[:, k] = np.bincount(
+                bins.index, weights=y if power is None else power * y, minlength=size
+            )
         if w is None:
             mx2[:, k] = mx[:, k]
         else:
             mx2[:, k] = np.bincount(bins.index, weights=power * w, minlength=size)
-        power = power * bins.offset
+        power = bins.offset if power is None else power * bins.offset
     return _Moments(mx, my, mx2)
 
 
@@ -146,8 +153,9 @@ def _y_moments(bins: _Bins, y: np.ndarray, degree: int) -> np.ndarray:
     """The unweighted y moments of :func:`_moments` on the binned path (same sums, same order)."""
     size = bins.centre.size
     my = np.empty((size, degree + 1))
-    power = np.ones_like(bins.offset)
-    for k in range(degree + 1):
+    my[:, 0] = np.bincount(bins.index, weights=y, minlength=size)
+    power = bins.offset  # (1 · offset and 1 · y are exact: the same sums as _moments)
+    for k in range(1, degree + 1):
         my[:, k] = np.bincount(bins.index, weights=power * y, minlength=size)
         power = power * bins.offset
     return my
@@ -332,11 +340,14 @@ def _check(x, y, degree: int) -> tuple[np.ndarray, np.ndarray, str | None]:
         return x, y, f"fewer than {degree + 3} complete pairs"
     if np.unique(x[: min(x.size, 10_000)]).size < degree + 2 and np.unique(x).size < degree + 2:
         return x, y, f"x takes fewer than {degree + 2} distinct values"
-    if y.min() == y.max():
+    y_low, y_high = float(y.min()), float(y.max())
+    if y_low == y_high:
         return x, y, "y has no variation"
     # Local fits square and raise distances to the fourth power: keep them inside double range.
-    extreme = max(float(np.abs(x).max()), float(np.abs(y).max())) > 1e75
-    if extreme or not float(np.ptp(x)) > 1e-75 * max(1.0, float(np.abs(x).max())):
+    x_low, x_high = float(x.min()), float(x.max())
+    x_peak = max(abs(x_low), abs(x_high))
+    extreme = max(x_peak, abs(y_low), abs(y_high)) > 1e75
+    if extreme or not x_high - x_low > 1e-75 * max(1.0, x_peak):
         return (
             x,
             y,
