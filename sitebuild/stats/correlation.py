@@ -220,7 +220,8 @@ def _tie_averages(ordered: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     average += 1
     average /= 2.0
     del tie_start
-    tie_id = np.cumsum(new_tie, dtype=np.int64)
+    # Run numbers in 32 bits when they fit: at 10M rows, 40 MB less.
+    tie_id = np.cumsum(new_tie, dtype=np.int32 if n < 2**31 else np.int64)
     del new_tie
     tie_id -= 1
     return average, tie_id
@@ -622,13 +623,16 @@ def _grouped_ranks(data: np.ndarray, bounds: np.ndarray) -> tuple[np.ndarray, np
         # Ranks over all rows, first in the order of ``along``: a stable sort merges the
         # sorted runs, and the ranks go back along it (each group's entries in ascending
         # positions, so the writes run forward).
-        along_ranks = np.empty(values.size)
         if values.size:
             merged = np.argsort(along, kind="stable")
-            average, tie_id = _tie_averages(along[merged])
+            along.sort(kind="stable")  # the sorted runs merged, in place
+            average, tie_id = _tie_averages(along)
             del along
+            along_ranks = np.empty(values.size)
             put_back(along_ranks, merged, average, tie_id)
             del merged, average, tie_id
+        else:
+            along_ranks = along
         # Then to row order one group at a time, so each scatter stays within a group's rows.
         target = pooled[:, j] if whole else np.empty(values.size)
         for g in range(cut.size - 1):
