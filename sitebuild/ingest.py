@@ -119,6 +119,7 @@ class Table:
         whole = bool(keep.all())  # then no copies of the column and its codes
         order, bounds = group_order(self.codes if whole else self.codes[keep], len(self.groups))
         sorted_values = (values if whole else values[keep])[order]
+        del order
         return [sorted_values[bounds[i] : bounds[i + 1]] for i in range(len(self.groups))]
 
 

@@ -593,15 +593,18 @@ def _measure_entry(
     the summaries section's row, whose numbers the group rows then repeat."""
     spec = table.spec
     groups = list(table.groups)
-    arrays = table.by_group(measure)
     excluded: list[dict] = []
     keep: list[int] = []
-    samples_all = [Sample.of(v) for v in arrays]
+    # (The groups' values in one array are let go once each group has its sorted copy.)
+    samples_all = [Sample.of(v) for v in table.by_group(measure)]
     exact = getattr(table, "exact", None)
     if exact is None:
         moments_all = samples_all
         lows = [float(s.sorted[0]) if s.n else None for s in samples_all]
-        biggest = max((float(np.max(np.abs(v))) for v in arrays if v.size), default=0.0)
+        biggest = max(
+            (max(-float(s.sorted[0]), float(s.sorted[-1])) for s in samples_all if s.n),
+            default=0.0,
+        )
     else:
         moments_all = [moment_sample(*m) for m in exact.group_moments(measure)]
         every = exact.moments[measure]

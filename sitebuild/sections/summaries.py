@@ -37,6 +37,7 @@ def _sorted_by_group(values: np.ndarray, codes: np.ndarray, n_groups: int):
     whole = bool(keep.all())  # then no copies of the column and its codes (10M rows: 160 MB)
     order, bounds = group_order(codes if whole else codes[keep], n_groups)
     ordered = (values if whole else values[keep])[order]
+    del order
     for index in range(n_groups):
         ordered[bounds[index] : bounds[index + 1]].sort()
     # Timsort ("stable" for floats) merges already-sorted runs in O(n log groups).
