@@ -307,3 +307,27 @@ def test_grouped_ranks_match_scipy_rankdata_with_ties_missing_values_and_empty_g
             expected[rows] = stats.rankdata(data[rows, j])
             got = within[:, j].astype(np.float64)
             assert np.array_equal(got[codes == g], expected[codes == g], equal_nan=True), (j, g)
+
+
+def test_ranking_in_place_gives_the_very_tables_of_the_copying_path(monkeypatch):
+    # Complete grouped data rank in place (one copy of the data less); the tables, including
+    # Kendall's seeded samples of rows, must be exactly those of the path that keeps the values.
+    from sitebuild.stats import correlation
+
+    rng = np.random.default_rng(5)
+    n = 3000
+    data = rng.normal(size=(n, 4))
+    data[:, 1] += data[:, 0]
+    data[:, 2] = np.round(data[:, 2], 1)  # ties
+    data[:, 3] = 1.0  # a constant column
+    codes = rng.integers(0, 3, size=n)
+
+    def tables():
+        return correlation_tables(data, codes, 3, rng=np.random.default_rng(1), kendall_limit=500)
+
+    in_place = tables()
+    monkeypatch.setattr(correlation, "_complete", lambda values: False)
+    copying = tables()
+    assert [(t.method, t.group) for t in in_place] == [(t.method, t.group) for t in copying]
+    assert in_place == copying
+    assert any(c.n == 500 for t in in_place if t.method == "kendall" for _, _, c in t.pairs)

@@ -63,7 +63,9 @@ def _scopes(table) -> tuple[np.ndarray, np.ndarray]:
     key = table.codes.astype(np.int16) if len(table.groups) < 32_000 else table.codes
     order = np.argsort(key, kind="stable")
     bounds = np.searchsorted(key[order], np.arange(len(table.groups) + 1))
-    return order, bounds
+    # Kept for the whole section (the smooths gather each measure with it): 32 bits when
+    # they fit, 40 MB less at 10M rows.
+    return (order.astype(np.int32) if order.size < 2**31 else order), bounds
 
 
 def group_sizes(table) -> np.ndarray:

@@ -567,6 +567,8 @@ def correlation_tables(
         for j, column in enumerate(columns):
             data[:, j] = column
     del columns
+    if grouped and "spearman" in methods and _complete(data):
+        return _tables_ranking_in_place(data, bounds, methods, level, rng, kendall_limit)
     ranks_all = within = None  # only Spearman uses ranks
     if "spearman" in methods:
         if grouped:
@@ -584,9 +586,57 @@ def correlation_tables(
     return out
 
 
-def _grouped_ranks(data: np.ndarray, bounds: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+def _complete(data: np.ndarray) -> bool:
+    """True when no value is missing (then the ranks may overwrite the values)."""
+    return not np.isnan(data).any()
+
+
+def _tables_ranking_in_place(
+    data: np.ndarray,
+    bounds: np.ndarray,
+    methods: tuple[str, ...],
+    level: float,
+    rng: np.random.Generator,
+    kendall_limit: int,
+) -> list[CorrelationTable]:
+    """The tables of :func:`correlation_tables` for grouped data with no missing value, in the
+    same order and from the same random draws, holding one copy of the data less.
+
+    Every table that reads the values (Pearson, Kendall) is made first, in the usual order;
+    then the within-group ranks overwrite the values. With every row complete, a Spearman
+    table needs only ranks: each pair's rows are the columns' own, and a column of constant
+    values is a column of equal ranks. (10M rows × 5 columns: 200 MB less at the peak.)
+    """
+    scopes = [slice(None)] + [slice(bounds[g], bounds[g + 1]) for g in range(bounds.size - 1)]
+    labels = [None, *range(bounds.size - 1)]
+    tables: dict[tuple[int, str], CorrelationTable] = {}
+    for index, part in enumerate(scopes):  # Kendall draws its samples in this order, as usual
+        for m in methods:
+            if m != "spearman":
+                tables[index, m] = _scope_table(
+                    data[part], None, m, level, labels[index], rng, kendall_limit
+                )
+    ranks_all, within = _grouped_ranks(data, bounds, in_place=True)
+    del data  # it holds the within-group ranks now
+    tables[0, "spearman"] = _scope_table(
+        ranks_all, ranks_all, "spearman", level, None, rng, kendall_limit
+    )
+    del ranks_all
+    for index, part in enumerate(scopes[1:], start=1):
+        ranks = within[part]
+        tables[index, "spearman"] = _scope_table(
+            ranks, ranks, "spearman", level, labels[index], rng, kendall_limit
+        )
+    return [tables[index, m] for index in range(len(scopes)) for m in methods]
+
+
+def _grouped_ranks(
+    data: np.ndarray, bounds: np.ndarray, in_place: bool = False
+) -> tuple[np.ndarray, np.ndarray]:
     """Return (ranks over all rows, ranks within each group) of every column, NaN where missing
     (the second in float32 when every group is under 2^23 rows, where that is exact).
+    ``in_place`` writes the within-group ranks over ``data`` itself (float64, and returns it):
+    each group's values are read before its ranks are written.
 
     ``data`` has its rows sorted by group, group g in rows ``bounds[g]:bounds[g + 1]``. Each
     group's values are sorted on their own, and one stable sort that merges those sorted runs
@@ -600,7 +650,10 @@ def _grouped_ranks(data: np.ndarray, bounds: np.ndarray) -> tuple[np.ndarray, np
     # Mid-ranks are multiples of 1/2: below 2^23 values a group's are exact in float32, which
     # halves this matrix (10M rows: 200 MB saved); each group's slice is widened when used.
     exact32 = int(np.max(np.diff(bounds), initial=0)) < 2**23
-    within = np.full((n, k), np.nan, dtype=np.float32 if exact32 else np.float64, order="F")
+    if in_place:
+        within = data
+    else:
+        within = np.full((n, k), np.nan, dtype=np.float32 if exact32 else np.float64, order="F")
     for j in range(k):
         column = data[:, j]
         missing = np.isnan(column)
@@ -608,7 +661,8 @@ def _grouped_ranks(data: np.ndarray, bounds: np.ndarray) -> tuple[np.ndarray, np
         rows = slice(None) if whole else np.flatnonzero(~missing)
         values = column if whole else column[rows]
         cut = bounds if whole else np.searchsorted(rows, bounds)  # group bounds among kept rows
-        order = np.empty(values.size, dtype=np.int64)
+        # Positions in 32 bits when they fit (at 10M rows, 40 MB less).
+        order = np.empty(values.size, dtype=np.int32 if values.size < 2**31 else np.int64)
         along = np.empty(values.size)  # each group's values in order, group after group
         for g in range(cut.size - 1):
             # One group at a time: its gathers and scatters stay within its own rows.

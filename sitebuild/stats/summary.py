@@ -206,7 +206,9 @@ def describe_sorted(values: np.ndarray, level: float = 0.95, missing: int = 0) -
     unit = math.ldexp(1.0, math.frexp(largest)[1] - 1) if largest > 0 else 1.0
     scaled = values / unit
     mean_s = float(scaled.mean())
-    deviations = scaled - mean_s
+    # Shapiro–Wilk (small samples) reads the scaled values below; on larger ones they become
+    # the deviations in place (at 10M values each such array is 80 MB).
+    deviations = scaled - mean_s if n <= SHAPIRO_LIMIT else np.subtract(scaled, mean_s, out=scaled)
     # A second correction pass removes the rounding left in the first mean (Chan et al. 1983).
     correction = float(deviations.mean())
     mean_s += correction
@@ -259,6 +261,7 @@ def describe_sorted(values: np.ndarray, level: float = 0.95, missing: int = 0) -
     out["share_within_2sd"] = (
         float(np.count_nonzero(within <= within_sd_bound(2, sd_s, mean_s))) / n
     )
+    del within
     biased_var = m2 / n
     m3 = float((squares * deviations).mean())
     m4 = float((squares * squares).mean())
