@@ -841,10 +841,12 @@ MAX_LABEL = 200  # characters; every chart, table and CSV repeats a group's labe
 # A Parquet file is read into memory by default when its rows fit half of this machine's
 # physical memory at this many bytes per cell (row × column read, the group included), and
 # streamed otherwise. Measured with benchmarks/speed.py: 10,000,000 rows × 6 columns built in
-# memory at a 4.6 GB peak, about 72 bytes per cell over the libraries' own 0.3 GB (5.4 GB
-# before this limit's work; 90 keeps a margin for other shapes). On a 24 GB
-# machine that keeps files of up to about 22 million such rows in memory, every statistic
-# exact. Total (not free) memory, so the same file always gets the same engine on a machine.
+# memory at a 4.6 GB peak when this limit was set, about 72 bytes per cell over the libraries'
+# own 0.3 GB; since then the peak fell to 2.4 GB (about 35 bytes per cell). 90 stays, a margin
+# for shapes whose temporaries grow faster (many measures: the correlation ranks hold several
+# copies of every column). On a 24 GB machine that keeps files of up to about 22 million such
+# rows in memory, every statistic exact. Total (not free) memory, so the same file always gets
+# the same engine on a machine.
 BYTES_PER_CELL = 90
 MEMORY_SHARE = 0.5
 STREAM_ROWS: int | None = None  # a fixed row limit instead of the memory-based one (tests)
