@@ -370,3 +370,34 @@ def test_engine_for_long_parquet_files_and_explicit_memory(tmp_path, monkeypatch
     monkeypatch.setattr(ingest, "STREAM_ROWS", 2)  # the footer says 3 rows
     assert engine_for(spec) == "stream"
     assert engine_for(dataclasses.replace(spec, engine="memory")) == "memory"
+
+
+def test_parts_folded_side_by_side_give_the_numbers_of_one_part_after_another(
+    tmp_path, small_passes, monkeypatch
+):
+    # On several cores the parts of a folder are read and folded in parallel; the merge order
+    # is the parts' order, so the sample, every merged moment and every order statistic must
+    # be exactly those of reading one part after another.
+    frame = _frame()
+    path = tmp_path / "parts"
+    path.mkdir()
+    for i, rows in enumerate(np.array_split(np.arange(len(frame)), 5)):
+        frame.iloc[rows].to_parquet(path / f"part-{i}.parquet")
+    site = SiteSettings()
+
+    def streamed():
+        table = read_table(_spec(path))
+        keys = clean(summaries.compute(table, site, None, {}))
+        return table, keys
+
+    side_by_side, keys_parallel = streamed()
+    monkeypatch.setattr(engine, "cores", lambda: 1)
+    one_by_one, keys_serial = streamed()
+    assert keys_parallel == keys_serial
+    assert side_by_side.groups == one_by_one.groups
+    assert np.array_equal(side_by_side.codes, one_by_one.codes)
+    for name in ("v", "w", "k", "x"):
+        assert np.array_equal(side_by_side.values(name), one_by_one.values(name), equal_nan=True)
+        a, b = side_by_side.exact.moments[name], one_by_one.exact.moments[name]
+        for field in ("n", "mean", "m2", "low", "high"):
+            assert np.array_equal(getattr(a, field), getattr(b, field), equal_nan=True), field

@@ -41,6 +41,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
+from ..cores import cores, share
 from ..ingest import (
     ColumnProblem,
     IngestReport,
@@ -295,14 +296,12 @@ class ScanTask:
         labels = self.groups + 1
         if self.first:
             d = np.abs(v - plan.mean[lab])
-            sd = plan.sd[lab]
-            centre = plan.mean[lab]
-            acc["within"][0] += np.bincount(
-                lab[d <= within_sd_bound(1, sd, centre)], minlength=labels
-            )
-            acc["within"][1] += np.bincount(
-                lab[d <= within_sd_bound(2, sd, centre)], minlength=labels
-            )
+            # Each label's bounds, then looked up per row (the same numbers as per row).
+            within_1 = within_sd_bound(1, plan.sd, plan.mean)[lab]
+            acc["within"][0] += np.bincount(lab[d <= within_1], minlength=labels)
+            del within_1
+            within_2 = within_sd_bound(2, plan.sd, plan.mean)[lab]
+            acc["within"][1] += np.bincount(lab[d <= within_2], minlength=labels)
             small = plan.collect_all[lab]
             if small.any():
                 acc["small"].append((lab[small], v[small]))
@@ -430,13 +429,27 @@ Runner = Callable[[Source, object], object]
 
 
 def run_local(source: Source, task) -> object:
-    """Run one pass over every part, one batch after another, and return the merged state."""
-    merged = None
-    for part in range(len(source.parts)):
+    """Run one pass over every part and return the merged state.
+
+    Each part folds its own batches into its own state (with its own seeded generator), and
+    the states merge in part order. On several cores the parts of a folder are read and
+    folded side by side (``cores.share``), as many at a time as there are cores, so only that
+    many states and batches are held at once; the merge order, and so every number, is the
+    same as one part after another.
+    """
+
+    def fold(part: int) -> object:
         state = task.start(part)
         for batch in batches(source, part):
             state = task.add(state, batch, part)
-        merged = state if merged is None else task.merge(merged, state)
+        return state
+
+    parts = range(len(source.parts))
+    width = cores()
+    merged = None
+    for start in range(0, len(parts), width):
+        for state in share(fold, parts[start : start + width]):
+            merged = state if merged is None else task.merge(merged, state)
     return merged
 
 
