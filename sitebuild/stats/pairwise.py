@@ -209,9 +209,9 @@ def _pooled_ranks(samples: Sequence[Sample]) -> tuple[np.ndarray, np.ndarray, np
     pooled = np.concatenate([s.sorted for s in samples])
     size = pooled.size
     order = np.argsort(pooled, kind="stable")
-    pooled.sort(kind="stable")  # the runs merged in place: the values in that order
-    ordered = pooled  # (temporaries are let go early: at 10M rows each is 80 MB)
-    del pooled
+    ordered = pooled  # sorted in place: the runs merged, the values in that order
+    ordered.sort(kind="stable")
+    del pooled  # (temporaries are let go early: at 10M rows each is 80 MB)
     new_value = np.empty(size, dtype=bool)
     new_value[:1] = True
     np.not_equal(ordered[1:], ordered[:-1], out=new_value[1:])
