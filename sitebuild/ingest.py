@@ -11,8 +11,9 @@ import csv
 import io
 import os
 import re
+import threading
 import warnings as warnings_module
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 from pathlib import Path
 
 import numpy as np
@@ -83,6 +84,9 @@ class IngestReport:
         }
 
 
+_KEEP_LOCK = threading.Lock()
+
+
 @dataclass(frozen=True, eq=False)
 class Table:
     """A dataset ready for statistics.
@@ -99,6 +103,7 @@ class Table:
     # Set by the streaming and Dask engines: exact summaries of every row (see
     # sitebuild.streaming.engine.Streamed), while ``codes``/``columns`` hold a bounded sample.
     exact: object | None = None
+    _kept: dict = field(default_factory=dict, repr=False)  # what rows_by_group() made
 
     @property
     def n_rows(self) -> int:
@@ -107,6 +112,21 @@ class Table:
     def values(self, name: str) -> np.ndarray:
         """Return the float column ``name`` (NaN = missing), one entry per used row."""
         return self.columns[name]
+
+    def rows_by_group(self) -> tuple[np.ndarray, np.ndarray]:
+        """Return :func:`group_order` of every row (positions sorted by group, each group's
+        in their original order, and the group bounds).
+
+        Made once and kept: every section asks for it (at 10M rows each sort took about
+        0.1 s), and the positions are stored in 32 bits when they fit (40 MB at 10M rows).
+        """
+        with _KEEP_LOCK:
+            if "rows" not in self._kept:
+                order, bounds = group_order(self.codes, len(self.groups))
+                if order.size < 2**31:
+                    order = order.astype(np.int32)
+                self._kept["rows"] = (order, bounds)
+            return self._kept["rows"]
 
     def by_group(self, name: str) -> list[np.ndarray]:
         """Return the non-missing values of ``name`` per group, in display order.
@@ -117,7 +137,10 @@ class Table:
         values = self.columns[name]
         keep = ~np.isnan(values)
         whole = bool(keep.all())  # then no copies of the column and its codes
-        order, bounds = group_order(self.codes if whole else self.codes[keep], len(self.groups))
+        if whole:
+            order, bounds = self.rows_by_group()
+        else:
+            order, bounds = group_order(self.codes[keep], len(self.groups))
         sorted_values = (values if whole else values[keep])[order]
         del order
         return [sorted_values[bounds[i] : bounds[i + 1]] for i in range(len(self.groups))]

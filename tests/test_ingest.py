@@ -236,3 +236,21 @@ def test_manifest_order_listing_a_group_twice_is_refused(tmp_path):
     )
     with pytest.raises(SitebuildError, match="order.*lists a group twice"):
         load_manifest(root)
+
+
+def test_rows_by_group_is_made_once_and_matches_a_stable_sort_by_group(tmp_path):
+    # Reference: numpy's stable argsort of the group codes (each group's rows in file order).
+    rng = np.random.default_rng(3)
+    labels = rng.choice(["b", "a", "c"], 500)
+    text = "g,v,w\n" + "\n".join(f"{g},{i},{i % 7}" for i, g in enumerate(labels))
+    table = table_for(tmp_path, "d.csv", text)
+    order, bounds = table.rows_by_group()
+    expected = np.argsort(table.codes, kind="stable")
+    assert np.array_equal(order, expected)
+    assert order.dtype == np.int32
+    assert bounds.tolist() == [0, *np.cumsum(np.bincount(table.codes)).tolist()]
+    again = table.rows_by_group()
+    assert again[0] is order and again[1] is bounds  # kept, not made again
+    values = table.values("v")
+    for group, part in zip(table.groups, table.by_group("v"), strict=True):
+        assert part.tolist() == values[[table.groups[c] == group for c in table.codes]].tolist()

@@ -22,7 +22,6 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from ..ingest import group_order
 from ..stats import practice_findings
 from ..stats.ancova import XYMoments, ancova
 from ..stats.multiplicity import METHOD_NAMES, adjust_pvalues
@@ -78,7 +77,7 @@ class GroupRows:
 
     @classmethod
     def of(cls, table, x: str) -> GroupRows:
-        order, bounds = group_order(table.codes, len(table.groups))
+        order, bounds = table.rows_by_group()
         xs = table.values(x)
         complete = not np.isnan(xs).any()
         centre = float(np.mean(xs)) if complete and xs.size else 0.0

@@ -60,12 +60,7 @@ def _note_for(reason: str | None, a: str, b: str) -> str | None:
 
 
 def _scopes(table) -> tuple[np.ndarray, np.ndarray]:
-    key = table.codes.astype(np.int16) if len(table.groups) < 32_000 else table.codes
-    order = np.argsort(key, kind="stable")
-    bounds = np.searchsorted(key[order], np.arange(len(table.groups) + 1))
-    # Kept for the whole section (the smooths gather each measure with it): 32 bits when
-    # they fit, 40 MB less at 10M rows.
-    return (order.astype(np.int32) if order.size < 2**31 else order), bounds
+    return table.rows_by_group()  # kept by the table, shared with the other sections
 
 
 def group_sizes(table) -> np.ndarray:
