@@ -134,16 +134,28 @@ class Table:
         Made afresh on each call (each caller asks once per column): kept, they would hold a
         copy of every column for the whole build (10M rows: 400 MB).
         """
-        values = self.columns[name]
-        keep = ~np.isnan(values)
-        whole = bool(keep.all())  # then no copies of the column and its codes
-        if whole:
-            order, bounds = self.rows_by_group()
-        else:
-            order, bounds = group_order(self.codes[keep], len(self.groups))
-        sorted_values = (values if whole else values[keep])[order]
-        del order
-        return [sorted_values[bounds[i] : bounds[i + 1]] for i in range(len(self.groups))]
+        ordered, bounds = in_group_order(
+            self.columns[name], self.codes, len(self.groups), self.rows_by_group()
+        )
+        return [ordered[bounds[i] : bounds[i + 1]] for i in range(len(self.groups))]
+
+
+def in_group_order(
+    values: np.ndarray,
+    codes: np.ndarray,
+    n_groups: int,
+    rows: tuple[np.ndarray, np.ndarray] | None = None,
+) -> tuple[np.ndarray, np.ndarray]:
+    """Return (the non-missing values in group order, each group's in their original order;
+    the group bounds). ``rows`` is :func:`group_order` of every code when the caller keeps it
+    (:meth:`Table.rows_by_group`): with no value missing, neither the column nor the codes are
+    then copied (10M rows: 160 MB)."""
+    keep = ~np.isnan(values)
+    if keep.all():
+        order, bounds = rows if rows is not None else group_order(codes, n_groups)
+        return values[order], bounds
+    order, bounds = group_order(codes[keep], n_groups)
+    return values[keep][order], bounds
 
 
 def group_order(codes: np.ndarray, n_groups: int) -> tuple[np.ndarray, np.ndarray]:

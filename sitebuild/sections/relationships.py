@@ -59,10 +59,6 @@ def _note_for(reason: str | None, a: str, b: str) -> str | None:
     return reason
 
 
-def _scopes(table) -> tuple[np.ndarray, np.ndarray]:
-    return table.rows_by_group()  # kept by the table, shared with the other sections
-
-
 def group_sizes(table) -> np.ndarray:
     """Return the rows per group: of every row on streamed data, not of the sample."""
     exact = getattr(table, "exact", None)
@@ -418,7 +414,7 @@ def compute(table, settings, rng: np.random.Generator, partial: dict | None = No
             f"With {len(names)} columns, within-group correlations use Pearson and Spearman only "
             "(Kendall for all rows)."
         )
-    order, bounds = _scopes(table)
+    order, bounds = table.rows_by_group()  # kept by the table, shared with other sections
     level = settings.confidence
     span = spec.smooth_span
 

@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import numpy as np
 
-from ..ingest import Table, group_order
+from ..ingest import Table, in_group_order
 from ..manifest import SiteSettings
 from ..stats.summary import NORMAL_WITHIN, Summary, describe_sorted, histogram_edges
 from . import MAX_CHART_GROUPS, Chart, DataTable, map_measures
@@ -34,19 +34,12 @@ def _sorted_by_group(values: np.ndarray, codes: np.ndarray, n_groups: int, rows=
     when given), one sort per group's slice, then a stable merge of the sorted runs for the
     all-groups row: cheaper than a lexsort plus a second full sort.
     """
-    keep = ~np.isnan(values)
-    whole = bool(keep.all())  # then no copies of the column and its codes (10M rows: 160 MB)
-    if whole and rows is not None:
-        order, bounds = rows
-    else:
-        order, bounds = group_order(codes if whole else codes[keep], n_groups)
-    ordered = (values if whole else values[keep])[order]
-    del order
+    ordered, bounds = in_group_order(values, codes, n_groups, rows)
     for index in range(n_groups):
         ordered[bounds[index] : bounds[index + 1]].sort()
     # Timsort ("stable" for floats) merges already-sorted runs in O(n log groups).
     everything = np.sort(ordered, kind="stable")
-    missing = np.bincount(codes[~keep], minlength=n_groups)
+    missing = np.bincount(codes[np.isnan(values)], minlength=n_groups)
     return ordered, bounds, missing, everything
 
 

@@ -286,13 +286,13 @@ class SharedRanks:
         count_type = np.int32 if size < 2**31 else np.int64
         distinct_codes, distinct_counts, cumulative, tied = [], [], [], []
         for g in range(len(samples)):
-            own = codes[bounds[g] : bounds[g + 1]]  # ascending: the group's values are sorted
+            own = codes[bounds[g] : bounds[g + 1]]
             counts = np.bincount(own, minlength=distinct)
             total = np.zeros(distinct + 1, dtype=count_type)
             np.cumsum(counts, out=total[1:])
-            present, count = distinct_values(own)
+            present = np.flatnonzero(counts)  # the group's distinct values, ascending
             distinct_codes.append(present)
-            distinct_counts.append(count)
+            distinct_counts.append(counts[present])
             cumulative.append(total)
             tied.append(counts[tied_codes].astype(float))
         del codes
